@@ -1,0 +1,131 @@
+package tables
+
+import (
+	"runtime"
+	"sync"
+)
+
+// Worst is the worst case of a rule: its largest regret over the
+// configurations evaluated, and the configuration where it is reached.
+type Worst struct {
+	// Regret is the worst-case regret in steps.
+	Regret float64
+	// Values is the configuration reaching it: true values in steps with
+	// minimum 0 over Subset, Far for channels far below the others.
+	Values []int
+	// Subset holds the channels of the configuration.
+	Subset Set
+	// Configurations is the number of configurations evaluated.
+	Configurations int
+}
+
+// Regret returns the expected regret, in steps, of rule at true values v
+// (Far for channels far below): max v - sum_i v_i P[rule picks i].
+func (l *Layout) Regret(rule Rule, v []int) float64 {
+	n := l.N()
+	var q Set
+	top := Far
+	for i, x := range v {
+		if x > Far/2 {
+			q |= 1 << uint(i)
+			if x > top {
+				top = x
+			}
+		}
+	}
+	if q.Len() < 2 {
+		return 0
+	}
+	r := make([]int, n)
+	p := make([]float64, n)
+	var sum float64
+	l.Outcomes(q, func(a []int, prob float64) {
+		for i := range r {
+			r[i] = v[i] + a[i]
+		}
+		rule.Probs(r, p)
+		var s float64
+		for i := range p {
+			if p[i] != 0 {
+				s += p[i] * float64(top-v[i])
+			}
+		}
+		sum += prob * s
+	})
+	return sum
+}
+
+// WorstCase returns the worst-case regret of rule over every configuration
+// of every subset of at least two channels whose sorted consecutive value
+// gaps are at most d steps. For the table rules of this package d = l.D
+// gives the exact worst case (design notes, step 4); a rule that shifts
+// readings needs d widened by the largest shift. Ties keep the first
+// configuration in enumeration order, so the result is deterministic.
+func (l *Layout) WorstCase(rule Rule, d int) Worst {
+	type job struct {
+		seq int
+		v   []int
+	}
+	type res struct {
+		seq    int
+		regret float64
+		v      []int
+	}
+	workers := runtime.GOMAXPROCS(0)
+	jobs := make(chan []job, workers)
+	results := make(chan res, workers)
+	var wg sync.WaitGroup
+	for w := 0; w < workers; w++ {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			best := res{seq: -1}
+			for batch := range jobs {
+				for _, j := range batch {
+					reg := l.Regret(rule, j.v)
+					if best.seq < 0 || reg > best.regret || (reg == best.regret && j.seq < best.seq) {
+						best = res{j.seq, reg, j.v}
+					}
+				}
+			}
+			results <- best
+		}()
+	}
+	count := 0
+	go func() {
+		var batch []job
+		for _, q := range Subsets(l.N()) {
+			Configurations(l.N(), q, d, func(v []int) bool {
+				batch = append(batch, job{count, append([]int(nil), v...)})
+				count++
+				if len(batch) == 64 {
+					jobs <- batch
+					batch = nil
+				}
+				return true
+			})
+		}
+		if len(batch) > 0 {
+			jobs <- batch
+		}
+		close(jobs)
+		wg.Wait()
+		close(results)
+	}()
+	best := res{seq: -1}
+	for r := range results {
+		if r.seq < 0 {
+			continue
+		}
+		if best.seq < 0 || r.regret > best.regret || (r.regret == best.regret && r.seq < best.seq) {
+			best = r
+		}
+	}
+	w := Worst{Regret: best.regret, Values: best.v, Configurations: count}
+	for i, x := range best.v {
+		if x > Far/2 {
+			w.Subset |= 1 << uint(i)
+		}
+	}
+	return w
+}

@@ -1,0 +1,247 @@
+package tables
+
+import (
+	"fmt"
+)
+
+// A Rule maps a reading vector to the probability of picking each channel.
+// Readings are in steps; channels far below all others (outside a
+// configuration's subset) read Far. Probs writes all n entries of p, which
+// sum to 1. A Rule must be safe for concurrent use.
+type Rule interface {
+	Probs(r []int, p []float64)
+}
+
+// Greedy is the rule that picks the highest reading, sharing ties equally.
+type Greedy struct{}
+
+// Probs implements Rule.
+func (Greedy) Probs(r []int, p []float64) { argmaxShare(r, nil, p) }
+
+// Offset is the offset rule: it picks the highest r_i + theta_i, sharing
+// ties equally. Half[i] is theta_i in half steps.
+type Offset struct {
+	Half []int
+}
+
+// Probs implements Rule.
+func (o Offset) Probs(r []int, p []float64) { argmaxShare(r, o.Half, p) }
+
+// argmaxShare sets p to the uniform distribution over the channels with the
+// highest 2*r_i + half_i (half may be nil).
+func argmaxShare(r []int, half []int, p []float64) {
+	best, count := 0, 0
+	for i, x := range r {
+		s := 2 * x
+		if half != nil {
+			s += half[i]
+		}
+		switch {
+		case count == 0 || s > best:
+			best, count = s, 1
+		case s == best:
+			count++
+		}
+	}
+	w := 1 / float64(count)
+	for i, x := range r {
+		s := 2 * x
+		if half != nil {
+			s += half[i]
+		}
+		if s == best {
+			p[i] = w
+		} else {
+			p[i] = 0
+		}
+	}
+}
+
+// Cell is one cell of a decision table: a vector of reading differences of
+// the group's channels that leaves at least two channels not certainly below
+// another, and the probability of picking each of them.
+type Cell struct {
+	// Diff holds r_k - r_first for each member k of the group, in member
+	// order (so Diff[0] is 0), in steps.
+	Diff []int
+	// Alive is the set of members not certainly below another member.
+	Alive Set
+	// P holds the probability of picking each member, in member order. It
+	// is zero outside Alive and sums to 1.
+	P []float64
+}
+
+// Table is the decision table of one group of channels: the rule used when
+// exactly these channels form the top group of the readings.
+type Table struct {
+	Group   Set
+	Members []int
+	Cells   []Cell
+	span    int // largest |difference| of a key entry: T*(|group|-1)
+	index   map[int64]int32
+}
+
+// NewTable returns an empty table for group g under layout l.
+func NewTable(l *Layout, g Set) *Table {
+	m := g.Members()
+	return &Table{Group: g, Members: m, span: l.T * (len(m) - 1), index: make(map[int64]int32)}
+}
+
+// Key packs the reading differences of the group's members, relative to the
+// first member, into one integer; ok is false when a difference is out of
+// the table's range.
+func (t *Table) Key(r []int) (key int64, ok bool) {
+	base := int64(2*t.span + 1)
+	r0 := r[t.Members[0]]
+	for i := len(t.Members) - 1; i >= 1; i-- {
+		d := r[t.Members[i]] - r0
+		if d < -t.span || d > t.span {
+			return 0, false
+		}
+		key = key*base + int64(d+t.span)
+	}
+	return key, true
+}
+
+// Lookup returns the index of the cell for readings r, or -1.
+func (t *Table) Lookup(r []int) int {
+	k, ok := t.Key(r)
+	if !ok {
+		return -1
+	}
+	if c, ok := t.index[k]; ok {
+		return int(c)
+	}
+	return -1
+}
+
+// Add appends a cell for readings r with the given alive set and
+// probabilities (per member; nil for uniform over alive) and returns its
+// index. It returns the existing index if the cell is already present.
+func (t *Table) Add(r []int, alive Set, p []float64) int {
+	k, ok := t.Key(r)
+	if !ok {
+		return -1
+	}
+	if c, ok := t.index[k]; ok {
+		return int(c)
+	}
+	c := Cell{Diff: make([]int, len(t.Members)), Alive: alive, P: make([]float64, len(t.Members))}
+	r0 := r[t.Members[0]]
+	for i, ch := range t.Members {
+		c.Diff[i] = r[ch] - r0
+	}
+	if p != nil {
+		copy(c.P, p)
+	} else {
+		w := 1 / float64(alive.Len())
+		for i, ch := range t.Members {
+			if alive.Has(ch) {
+				c.P[i] = w
+			}
+		}
+	}
+	t.Cells = append(t.Cells, c)
+	t.index[k] = int32(len(t.Cells) - 1)
+	return len(t.Cells) - 1
+}
+
+// Optimal is a rule given by decision tables, one per group of channels.
+// Readings whose top group has a single channel, or a single channel not
+// certainly below another, pick it; otherwise the rule looks up the cell of
+// the top group's table. A missing cell picks uniformly among the alive
+// channels (a table built by pickwise covers every reachable cell).
+type Optimal struct {
+	Layout *Layout
+	Tables []*Table  // in the order of Subsets
+	byset  []*Table  // indexed by group mask
+}
+
+// NewOptimal returns a table rule with an empty table for every group.
+func NewOptimal(l *Layout) *Optimal {
+	n := l.N()
+	o := &Optimal{Layout: l, byset: make([]*Table, 1<<uint(n))}
+	for _, s := range Subsets(n) {
+		t := NewTable(l, s)
+		o.Tables = append(o.Tables, t)
+		o.byset[s] = t
+	}
+	return o
+}
+
+// Table returns the table of group g, or nil.
+func (o *Optimal) Table(g Set) *Table {
+	if int(g) >= len(o.byset) {
+		return nil
+	}
+	return o.byset[g]
+}
+
+// Locate returns the top group of readings r, its alive channels, and the
+// table and cell index that decide (nil and -1 for a forced choice).
+func (o *Optimal) Locate(r []int) (g, alive Set, t *Table, cell int) {
+	var order [16]int
+	g = o.Layout.TopGroup(r, order[:len(r)])
+	if g.Len() == 1 {
+		return g, g, nil, -1
+	}
+	alive = o.Layout.Alive(g, r)
+	if alive.Len() == 1 {
+		return g, alive, nil, -1
+	}
+	t = o.byset[g]
+	return g, alive, t, t.Lookup(r)
+}
+
+// Probs implements Rule.
+func (o *Optimal) Probs(r []int, p []float64) {
+	for i := range p {
+		p[i] = 0
+	}
+	_, alive, t, c := o.Locate(r)
+	if t == nil || c < 0 {
+		w := 1 / float64(alive.Len())
+		for i := range p {
+			if alive.Has(i) {
+				p[i] = w
+			}
+		}
+		return
+	}
+	for i, ch := range t.Members {
+		p[ch] = t.Cells[c].P[i]
+	}
+}
+
+// NumCells returns the number of cells over all tables.
+func (o *Optimal) NumCells() int {
+	n := 0
+	for _, t := range o.Tables {
+		n += len(t.Cells)
+	}
+	return n
+}
+
+// Check reports an error if a cell's probabilities are negative, not finite,
+// put mass outside the alive set, or do not sum to 1 within tol.
+func (o *Optimal) Check(tol float64) error {
+	for _, t := range o.Tables {
+		for ci, c := range t.Cells {
+			var s float64
+			for i, ch := range t.Members {
+				p := c.P[i]
+				if !(p >= 0) || p > 1+tol {
+					return fmt.Errorf("group %v cell %v: probability %g of channel %d", t.Members, c.Diff, p, ch)
+				}
+				if p > 0 && !c.Alive.Has(ch) {
+					return fmt.Errorf("group %v cell %v: channel %d is certainly below another but has probability %g", t.Members, c.Diff, ch, p)
+				}
+				s += p
+			}
+			if s < 1-tol || s > 1+tol {
+				return fmt.Errorf("group %v cell %d %v: probabilities sum to %g", t.Members, ci, c.Diff, s)
+			}
+		}
+	}
+	return nil
+}
