@@ -149,12 +149,14 @@ func (t *Table) Add(r []int, alive Set, p []float64) int {
 // Optimal is a rule given by decision tables, one per group of channels.
 // Readings whose top group has a single channel, or a single channel not
 // certainly below another, pick it; otherwise the rule looks up the cell of
-// the top group's table. A missing cell picks uniformly among the alive
-// channels (a table built by pickwise covers every reachable cell).
+// the top group's table. A missing cell picks the alive channel with the
+// highest reading, the lowest-numbered on a tie (a table built by pickwise
+// covers every reachable cell, so this only matters for tables from
+// elsewhere).
 type Optimal struct {
 	Layout *Layout
-	Tables []*Table  // in the order of Subsets
-	byset  []*Table  // indexed by group mask
+	Tables []*Table // in the order of Subsets
+	byset  []*Table // indexed by group mask
 }
 
 // NewOptimal returns a table rule with an empty table for every group.
@@ -200,12 +202,7 @@ func (o *Optimal) Probs(r []int, p []float64) {
 	}
 	_, alive, t, c := o.Locate(r)
 	if t == nil || c < 0 {
-		w := 1 / float64(alive.Len())
-		for i := range p {
-			if alive.Has(i) {
-				p[i] = w
-			}
-		}
+		p[Fallback(alive, r)] = 1
 		return
 	}
 	for i, ch := range t.Members {
@@ -244,4 +241,17 @@ func (o *Optimal) Check(tol float64) error {
 		}
 	}
 	return nil
+}
+
+// Fallback returns the channel a table rule picks when no cell decides: the
+// channel of alive with the highest reading, the lowest-numbered on a tie.
+// For a forced choice this is the only alive channel.
+func Fallback(alive Set, r []int) int {
+	best := -1
+	for i := range r {
+		if alive.Has(i) && (best < 0 || r[i] > r[best]) {
+			best = i
+		}
+	}
+	return best
 }

@@ -1,0 +1,390 @@
+// Package exact computes certificates for pickwise's results in exact
+// integer arithmetic: the worst-case regret of a table whose probabilities
+// are dyadic rationals (an upper bound on the optimum) and the Bayes risk of
+// a prior over configurations (a lower bound on every rule's worst case).
+//
+// Lattice probabilities are multiples of 2^-52 (discretize.DenomBits), so a
+// joint outcome of m channels has probability N / 2^(52m) with N an
+// integer; rule probabilities are integers over a denominator of the
+// rule's own. Every sum is an integer over a known power of two times that
+// denominator, and results are returned as big.Rat.
+package exact
+
+import (
+	"fmt"
+	"math"
+	"math/big"
+	"math/bits"
+	"runtime"
+	"sync"
+
+	"github.com/pickwise/pickwise/discretize"
+	"github.com/pickwise/pickwise/tables"
+)
+
+// Rule is a rule whose probabilities are exact rationals with a common
+// denominator.
+type Rule interface {
+	// Den returns the common denominator of the rule's probabilities.
+	Den() uint64
+	// Nums writes, for readings r (steps, tables.Far for absent channels),
+	// the numerator of the probability of each channel; they sum to Den.
+	Nums(r []int, q []uint64)
+}
+
+// lcm1n returns the least common multiple of 1..n.
+func lcm1n(n int) uint64 {
+	l := uint64(1)
+	for k := uint64(2); k <= uint64(n); k++ {
+		a, b := l, k
+		for b != 0 {
+			a, b = b, a%b
+		}
+		l = l / a * k
+	}
+	return l
+}
+
+// shareRule is greedy or the offset rule, with ties shared over a
+// denominator of lcm(1..n).
+type shareRule struct {
+	half []int // nil for greedy
+	den  uint64
+}
+
+// Greedy returns the greedy rule of n channels in exact form.
+func Greedy(n int) Rule { return shareRule{den: lcm1n(n)} }
+
+// Offset returns the offset rule with offsets in half steps in exact form.
+func Offset(half []int) Rule { return shareRule{half: half, den: lcm1n(len(half))} }
+
+func (s shareRule) Den() uint64 { return s.den }
+
+func (s shareRule) Nums(r []int, q []uint64) {
+	best, count := 0, 0
+	for i, x := range r {
+		v := 2 * x
+		if s.half != nil {
+			v += s.half[i]
+		}
+		if count == 0 || v > best {
+			best, count = v, 1
+		} else if v == best {
+			count++
+		}
+	}
+	share := s.den / uint64(count)
+	for i, x := range r {
+		v := 2 * x
+		if s.half != nil {
+			v += s.half[i]
+		}
+		if v == best {
+			q[i] = share
+		} else {
+			q[i] = 0
+		}
+	}
+}
+
+// Table is a table rule whose probabilities are multiples of 2^-Bits.
+type Table struct {
+	O    *tables.Optimal
+	Bits uint
+}
+
+// NewTable checks that every probability of o is a non-negative multiple of
+// 2^-bits, zero outside the alive set, and that each cell sums to exactly 1.
+func NewTable(o *tables.Optimal, bits uint) (*Table, error) {
+	if bits > 62 {
+		return nil, fmt.Errorf("exact: %d bits of probability is too many", bits)
+	}
+	den := uint64(1) << bits
+	for _, t := range o.Tables {
+		for _, c := range t.Cells {
+			var s uint64
+			for i, p := range c.P {
+				q, ok := numerator(p, bits)
+				if !ok {
+					return nil, fmt.Errorf("group %v cell %v: probability %v of channel %d is not a multiple of 2^-%d in [0, 1]", t.Members, c.Diff, p, t.Members[i], bits)
+				}
+				if q != 0 && !c.Alive.Has(t.Members[i]) {
+					return nil, fmt.Errorf("group %v cell %v: channel %d is certainly below another but has probability %v", t.Members, c.Diff, t.Members[i], p)
+				}
+				s += q
+			}
+			if s != den {
+				return nil, fmt.Errorf("group %v cell %v: probabilities sum to %d/2^%d, not 1", t.Members, c.Diff, s, bits)
+			}
+		}
+	}
+	return &Table{O: o, Bits: bits}, nil
+}
+
+// numerator returns p * 2^bits when that is an integer in [0, 2^bits].
+func numerator(p float64, bits uint) (uint64, bool) {
+	if !(p >= 0 && p <= 1) {
+		return 0, false
+	}
+	x := math.Ldexp(p, int(bits))
+	if x != math.Trunc(x) {
+		return 0, false
+	}
+	return uint64(x), true
+}
+
+// Den implements Rule.
+func (t *Table) Den() uint64 { return 1 << t.Bits }
+
+// Nums implements Rule.
+func (t *Table) Nums(r []int, q []uint64) {
+	for i := range q {
+		q[i] = 0
+	}
+	_, alive, tab, c := t.O.Locate(r)
+	if tab == nil || c < 0 {
+		q[tables.Fallback(alive, r)] = 1 << t.Bits
+		return
+	}
+	for i, ch := range tab.Members {
+		q[ch], _ = numerator(tab.Cells[c].P[i], t.Bits)
+	}
+}
+
+// Snap returns a copy of o whose probabilities are multiples of 2^-bits:
+// each is rounded to the nearest multiple, negatives and entries outside
+// the alive set are set to zero, and the largest entry absorbs the residue
+// so that every cell sums to exactly 1.
+func Snap(o *tables.Optimal, bits uint) *tables.Optimal {
+	den := int64(1) << bits
+	out := tables.NewOptimal(o.Layout)
+	for ti, t := range o.Tables {
+		dst := out.Tables[ti]
+		for _, c := range t.Cells {
+			q := make([]int64, len(c.P))
+			var s int64
+			big := -1
+			for i, p := range c.P {
+				if !c.Alive.Has(t.Members[i]) || !(p > 0) {
+					continue
+				}
+				q[i] = int64(math.Round(math.Min(p, 1) * float64(den)))
+				s += q[i]
+				if big < 0 || q[i] > q[big] {
+					big = i
+				}
+			}
+			if big < 0 {
+				// No positive entry: uniform over alive would not be
+				// dyadic in general; give all to the first alive channel.
+				for i := range c.P {
+					if c.Alive.Has(t.Members[i]) {
+						big = i
+						break
+					}
+				}
+			}
+			q[big] += den - s
+			p := make([]float64, len(q))
+			for i := range q {
+				p[i] = math.Ldexp(float64(q[i]), -int(bits))
+			}
+			r := make([]int, o.Layout.N())
+			for i, ch := range t.Members {
+				r[ch] = c.Diff[i]
+			}
+			dst.Add(r, c.Alive, p)
+		}
+	}
+	return out
+}
+
+// Worst is an exact worst case.
+type Worst struct {
+	Regret *big.Rat // in steps
+	Values []int    // the configuration reaching it (tables.Far outside Subset)
+	Subset tables.Set
+}
+
+// nums returns the exact lattice numerators of each channel of l.
+func nums(l *tables.Layout) [][]uint64 {
+	out := make([][]uint64, l.N())
+	for i, p := range l.P {
+		out[i] = make([]uint64, len(p))
+		for k, x := range p {
+			out[i][k] = uint64(math.Ldexp(x, discretize.DenomBits))
+		}
+	}
+	return out
+}
+
+// acc192 is an unsigned 192-bit accumulator.
+type acc192 [3]uint64
+
+func (a *acc192) addMul(x, y uint64) {
+	hi, lo := bits.Mul64(x, y)
+	var c uint64
+	a[0], c = bits.Add64(a[0], lo, 0)
+	a[1], c = bits.Add64(a[1], hi, c)
+	a[2] += c
+}
+
+func (a *acc192) big(z *big.Int) *big.Int {
+	z.SetUint64(a[2])
+	z.Lsh(z, 64)
+	z.Or(z, new(big.Int).SetUint64(a[1]))
+	z.Lsh(z, 64)
+	return z.Or(z, new(big.Int).SetUint64(a[0]))
+}
+
+// regretNum returns the integer N with regret(v) = N / (2^(52m) * den), m
+// the size of v's subset.
+func regretNum(l *tables.Layout, num [][]uint64, rule Rule, v []int, mem []int, out *big.Int) {
+	n := l.N()
+	top := tables.Far
+	for _, c := range mem {
+		if v[c] > top {
+			top = v[c]
+		}
+	}
+	r := make([]int, n)
+	copy(r, v)
+	q := make([]uint64, n)
+	m := len(mem)
+	last := mem[m-1]
+	prefix := big.NewInt(1)
+	tmp := new(big.Int)
+	out.SetInt64(0)
+	prefixes := make([]*big.Int, m)
+	for i := range prefixes {
+		prefixes[i] = new(big.Int)
+	}
+	prefixes[0].SetInt64(1)
+	var rec func(i int)
+	rec = func(i int) {
+		if i == m-1 {
+			var acc acc192
+			for k, pk := range num[last] {
+				r[last] = v[last] + l.Lo[last] + k
+				rule.Nums(r, q)
+				var inner uint64
+				for _, c := range mem {
+					if q[c] != 0 {
+						inner += q[c] * uint64(top-v[c])
+					}
+				}
+				if inner != 0 {
+					acc.addMul(pk, inner)
+				}
+			}
+			acc.big(tmp)
+			tmp.Mul(tmp, prefixes[i])
+			out.Add(out, tmp)
+			return
+		}
+		c := mem[i]
+		for k, pk := range num[c] {
+			if pk == 0 {
+				continue
+			}
+			r[c] = v[c] + l.Lo[c] + k
+			prefixes[i+1].Mul(prefixes[i], tmp.SetUint64(pk))
+			rec(i + 1)
+		}
+	}
+	_ = prefix
+	rec(0)
+}
+
+// WorstCase returns the exact worst-case regret of rule over every
+// configuration with sorted value gaps of at most d steps.
+func WorstCase(l *tables.Layout, rule Rule, d int) Worst {
+	num := nums(l)
+	n := l.N()
+	den := new(big.Int).SetUint64(rule.Den())
+	type job struct {
+		seq int
+		v   []int
+		q   tables.Set
+	}
+	type res struct {
+		seq int
+		val *big.Int // numerator scaled to 2^(52n) * den
+		v   []int
+		q   tables.Set
+	}
+	workers := runtime.GOMAXPROCS(0)
+	jobs := make(chan []job, workers)
+	results := make(chan res, workers)
+	var wg sync.WaitGroup
+	for w := 0; w < workers; w++ {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			best := res{seq: -1}
+			val := new(big.Int)
+			for batch := range jobs {
+				for _, j := range batch {
+					mem := j.q.Members()
+					regretNum(l, num, rule, j.v, mem, val)
+					val.Lsh(val, uint(discretize.DenomBits*(n-len(mem))))
+					if best.seq < 0 || val.Cmp(best.val) > 0 {
+						best = res{j.seq, new(big.Int).Set(val), j.v, j.q}
+					}
+				}
+			}
+			results <- best
+		}()
+	}
+	go func() {
+		seq := 0
+		var batch []job
+		for _, q := range tables.Subsets(n) {
+			tables.Configurations(n, q, d, func(v []int) bool {
+				batch = append(batch, job{seq, append([]int(nil), v...), q})
+				seq++
+				if len(batch) == 32 {
+					jobs <- batch
+					batch = nil
+				}
+				return true
+			})
+		}
+		if len(batch) > 0 {
+			jobs <- batch
+		}
+		close(jobs)
+		wg.Wait()
+		close(results)
+	}()
+	best := res{seq: -1}
+	for r := range results {
+		if r.seq < 0 {
+			continue
+		}
+		if best.seq < 0 || r.val.Cmp(best.val) > 0 || (r.val.Cmp(best.val) == 0 && r.seq < best.seq) {
+			best = r
+		}
+	}
+	scale := new(big.Int).Lsh(den, uint(discretize.DenomBits*n))
+	return Worst{Regret: new(big.Rat).SetFrac(best.val, scale), Values: best.v, Subset: best.q}
+}
+
+// Regret returns the exact regret of rule at configuration v (tables.Far
+// outside its subset), in steps.
+func Regret(l *tables.Layout, rule Rule, v []int) *big.Rat {
+	var q tables.Set
+	for i, x := range v {
+		if x > tables.Far/2 {
+			q |= 1 << uint(i)
+		}
+	}
+	if q.Len() < 2 {
+		return new(big.Rat)
+	}
+	mem := q.Members()
+	val := new(big.Int)
+	regretNum(l, nums(l), rule, v, mem, val)
+	scale := new(big.Int).Lsh(new(big.Int).SetUint64(rule.Den()), uint(discretize.DenomBits*len(mem)))
+	return new(big.Rat).SetFrac(val, scale)
+}
