@@ -87,54 +87,73 @@ func (s shareRule) Nums(r []int, q []uint64) {
 	}
 }
 
-// Table is a table rule whose probabilities are multiples of 2^-Bits.
+// Table is a table rule whose probabilities are exact fractions q/Den
+// with integer q: the probabilities of O, read as multiples of 1/Den.
 type Table struct {
-	O    *tables.Optimal
-	Bits uint
+	O     *tables.Optimal
+	Denom uint64
 }
 
 // NewTable checks that every probability of o is a non-negative multiple of
 // 2^-bits, zero outside the alive set, and that each cell sums to exactly 1.
 func NewTable(o *tables.Optimal, bits uint) (*Table, error) {
-	if bits > 62 {
-		return nil, fmt.Errorf("exact: %d bits of probability is too many", bits)
+	if bits > 52 {
+		return nil, fmt.Errorf("exact: %d bits of probability is too many (at most 52)", bits)
 	}
-	den := uint64(1) << bits
-	for _, t := range o.Tables {
-		for _, c := range t.Cells {
+	return newTable(o, uint64(1)<<bits, true)
+}
+
+// NewTableDen reads the probabilities of o as fractions q/den, q the
+// integer nearest to p*den, which must lie within 1e-6 of it; each cell's
+// numerators must be zero outside the alive set and sum to den. Use it for
+// tables rounded to a decimal or other non-binary denominator, such as a
+// printed procedure's "draw 1 to 100".
+func NewTableDen(o *tables.Optimal, den uint64) (*Table, error) {
+	if den == 0 || den > 1<<52 {
+		return nil, fmt.Errorf("exact: denominator %d out of range [1, 2^52]", den)
+	}
+	return newTable(o, den, false)
+}
+
+func newTable(o *tables.Optimal, den uint64, strict bool) (*Table, error) {
+	t := &Table{O: o, Denom: den}
+	for _, tab := range o.Tables {
+		for _, c := range tab.Cells {
 			var s uint64
 			for i, p := range c.P {
-				q, ok := numerator(p, bits)
+				q, ok := t.numerator(p, strict)
 				if !ok {
-					return nil, fmt.Errorf("group %v cell %v: probability %v of channel %d is not a multiple of 2^-%d in [0, 1]", t.Members, c.Diff, p, t.Members[i], bits)
+					return nil, fmt.Errorf("group %v cell %v: probability %v of channel %d is not a multiple of 1/%d in [0, 1]", tab.Members, c.Diff, p, tab.Members[i], den)
 				}
-				if q != 0 && !c.Alive.Has(t.Members[i]) {
-					return nil, fmt.Errorf("group %v cell %v: channel %d is certainly below another but has probability %v", t.Members, c.Diff, t.Members[i], p)
+				if q != 0 && !c.Alive.Has(tab.Members[i]) {
+					return nil, fmt.Errorf("group %v cell %v: channel %d is certainly below another but has probability %v", tab.Members, c.Diff, tab.Members[i], p)
 				}
 				s += q
 			}
 			if s != den {
-				return nil, fmt.Errorf("group %v cell %v: probabilities sum to %d/2^%d, not 1", t.Members, c.Diff, s, bits)
+				return nil, fmt.Errorf("group %v cell %v: probabilities sum to %d/%d, not 1", tab.Members, c.Diff, s, den)
 			}
 		}
 	}
-	return &Table{O: o, Bits: bits}, nil
+	return t, nil
 }
 
-// numerator returns p * 2^bits when that is an integer in [0, 2^bits].
-func numerator(p float64, bits uint) (uint64, bool) {
+// numerator returns p * Den when that is (strict: exactly; otherwise within
+// 1e-6) an integer in [0, Den].
+func (t *Table) numerator(p float64, strict bool) (uint64, bool) {
 	if !(p >= 0 && p <= 1) {
 		return 0, false
 	}
-	x := math.Ldexp(p, int(bits))
-	if x != math.Trunc(x) {
+	x := p * float64(t.Denom)
+	q := math.Round(x)
+	if strict && x != q || math.Abs(x-q) > 1e-6 {
 		return 0, false
 	}
-	return uint64(x), true
+	return uint64(q), true
 }
 
 // Den implements Rule.
-func (t *Table) Den() uint64 { return 1 << t.Bits }
+func (t *Table) Den() uint64 { return t.Denom }
 
 // Nums implements Rule.
 func (t *Table) Nums(r []int, q []uint64) {
@@ -143,11 +162,11 @@ func (t *Table) Nums(r []int, q []uint64) {
 	}
 	_, alive, tab, c := t.O.Locate(r)
 	if tab == nil || c < 0 {
-		q[tables.Fallback(alive, r)] = 1 << t.Bits
+		q[tables.Fallback(alive, r)] = t.Denom
 		return
 	}
 	for i, ch := range tab.Members {
-		q[ch], _ = numerator(tab.Cells[c].P[i], t.Bits)
+		q[ch], _ = t.numerator(tab.Cells[c].P[i], false)
 	}
 }
 
@@ -229,6 +248,18 @@ func (a *acc192) addMul(x, y uint64) {
 	a[2] += c
 }
 
+// addMul128 adds x * (yhi*2^64 + ylo).
+func (a *acc192) addMul128(x, yhi, ylo uint64) {
+	h1, l1 := bits.Mul64(x, ylo)
+	h2, l2 := bits.Mul64(x, yhi)
+	var c uint64
+	a[0], c = bits.Add64(a[0], l1, 0)
+	a[1], c = bits.Add64(a[1], h1, c)
+	a[2] += h2 + c
+	a[1], c = bits.Add64(a[1], l2, 0)
+	a[2] += c
+}
+
 func (a *acc192) big(z *big.Int) *big.Int {
 	z.SetUint64(a[2])
 	z.Lsh(z, 64)
@@ -267,14 +298,18 @@ func regretNum(l *tables.Layout, num [][]uint64, rule Rule, v []int, mem []int, 
 			for k, pk := range num[last] {
 				r[last] = v[last] + l.Lo[last] + k
 				rule.Nums(r, q)
-				var inner uint64
+				// inner = sum_c q_c (top - v_c), in 128 bits.
+				var ihi, ilo uint64
 				for _, c := range mem {
-					if q[c] != 0 {
-						inner += q[c] * uint64(top-v[c])
+					if q[c] != 0 && top != v[c] {
+						h, l := bits.Mul64(q[c], uint64(top-v[c]))
+						var cy uint64
+						ilo, cy = bits.Add64(ilo, l, 0)
+						ihi += h + cy
 					}
 				}
-				if inner != 0 {
-					acc.addMul(pk, inner)
+				if ihi != 0 || ilo != 0 {
+					acc.addMul128(pk, ihi, ilo)
 				}
 			}
 			acc.big(tmp)
