@@ -433,3 +433,15 @@ func TestKinds(t *testing.T) {
 		}
 	}
 }
+
+// TestQuantizeOverflow checks weights that are finite but whose sum
+// overflows float64: they must still be normalised, here to two halves.
+func TestQuantizeOverflow(t *testing.T) {
+	p, err := Quantize(3, []float64{math.MaxFloat64, 0, math.MaxFloat64})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if p.Lo != 3 || len(p.Num) != 3 || p.Num[0] != Denom/2 || p.Num[1] != 0 || p.Num[2] != Denom/2 {
+		t.Errorf("got Lo=%d Num=%v, want 3 [2^51 0 2^51]", p.Lo, p.Num)
+	}
+}

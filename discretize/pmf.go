@@ -141,11 +141,22 @@ func Quantize(lo int, w []float64) (PMF, error) {
 	if len(w) == 0 || total <= 0 {
 		return PMF{}, fmt.Errorf("no positive weight")
 	}
+	// Finite weights whose sum overflows: divide them by the largest first.
+	scale := 1.0
+	if math.IsInf(total, 1) {
+		for _, x := range w {
+			scale = max(scale, x)
+		}
+		total = 0
+		for _, x := range w {
+			total += x / scale
+		}
+	}
 	num := make([]uint64, len(w))
 	var sum uint64
 	big := 0
 	for i, x := range w {
-		num[i] = uint64(math.Round(x / total * float64(Denom)))
+		num[i] = uint64(math.Round(x / scale / total * float64(Denom)))
 		sum += num[i]
 		if num[i] > num[big] {
 			big = i
