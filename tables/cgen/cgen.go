@@ -413,12 +413,12 @@ func (d *data) write(w *bytes.Buffer, rep *strings.Replacer, l *tables.Layout) {
 
 	p("/* A group of channels with at least one cell. */\n")
 	p("struct pfx_group {\n")
-	p("    uint32_t mask;          /* bit i set: channel i is a member */\n")
-	p("    int32_t sorted;         /* 0: dense index, 1: sorted keys */\n")
-	p("    int32_t base;           /* first entry in pfx_dense or pfx_keys */\n")
-	p("    int32_t count;          /* entries: box points or keys */\n")
-	p("    int32_t dmin[PFX_N];    /* lowest r_k - r_first per member k */\n")
-	p("    int32_t dlen[PFX_N];    /* number of differences per member k */\n")
+	p("    uint32_t mask; /* bit i set: channel i is a member */\n")
+	p("    int32_t sorted; /* 0: dense index, 1: sorted keys */\n")
+	p("    int32_t base; /* first entry in pfx_dense or pfx_keys */\n")
+	p("    int32_t count; /* entries: box points or keys */\n")
+	p("    int32_t dmin[PFX_N]; /* lowest r_k - r_first per member k */\n")
+	p("    int32_t dlen[PFX_N]; /* number of differences per member k */\n")
 	p("};\n\n")
 	n := len(d.groups)
 	if n == 0 {

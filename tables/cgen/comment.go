@@ -34,7 +34,12 @@ func writeHeaderComment(w *bytes.Buffer, sol *result.Solution, headerName, prefi
 	p(" * edit: regenerate instead.\n")
 	p(" *\n")
 	p(" * Model\n")
-	p(" *   Step %s%s: readings and true values are multiples of the step.\n", strconv.FormatFloat(m.Step, 'g', -1, 64), unit)
+	if unit == "" {
+		p(" *   Step %s (in reading units; the model names no unit): readings and\n", strconv.FormatFloat(m.Step, 'g', -1, 64))
+		p(" *   true values are multiples of the step.\n")
+	} else {
+		p(" *   Step %s%s: readings and true values are multiples of the step.\n", strconv.FormatFloat(m.Step, 'g', -1, 64), unit)
+	}
 	p(" *   A reading is the channel's true value plus noise, independent across\n")
 	p(" *   channels, with the lattice pmf of the channel (offsets in steps):\n")
 	for i, c := range m.Channels {
