@@ -54,7 +54,7 @@ th { font-weight: bold; text-align: right; }
 thead th { text-align: center; }
 td { text-align: left; }
 table.grid, table.below { font-size: 8pt; }
-table.grid td, table.below td { text-align: center; white-space: nowrap; }
+table.grid td, table.below td { text-align: center; }
 table.model th { text-align: left; }
 td.out { font-style: italic; }
 .caution { border: 1.5pt solid #000; padding: 4pt 6pt; margin: 0.8em 0; break-inside: avoid; page-break-inside: avoid; }
