@@ -69,7 +69,9 @@ func (p *Problem) NumRows() int { return len(p.RowLo) }
 func (p *Problem) NumNonzeros() int { return len(p.Index) }
 
 // Validate checks that the problem is well formed: consistent lengths,
-// column indices in range, no NaN, and lower bounds not above upper bounds.
+// row starts non-decreasing and inside the entry arrays, column indices in
+// range and not repeated within a row, finite coefficients, no NaN, and
+// lower bounds not above upper bounds.
 func (p *Problem) Validate() error {
 	n := len(p.Obj)
 	if len(p.ColLo) != n || len(p.ColUp) != n {
@@ -85,10 +87,22 @@ func (p *Problem) Validate() error {
 	if len(p.Index) != len(p.Value) {
 		return fmt.Errorf("lp: %d indices but %d values", len(p.Index), len(p.Value))
 	}
+	if m > 0 && (p.RowStart[0] < 0 || p.RowStart[m] > len(p.Index)) {
+		return fmt.Errorf("lp: row starts span [%d, %d], outside the %d entries", p.RowStart[0], p.RowStart[m], len(p.Index))
+	}
+	for i := 0; i < m; i++ {
+		if p.RowStart[i] > p.RowStart[i+1] {
+			return fmt.Errorf("lp: row %d: start %d after next start %d", i, p.RowStart[i], p.RowStart[i+1])
+		}
+	}
 	for j := 0; j < n; j++ {
 		if math.IsNaN(p.Obj[j]) || math.IsNaN(p.ColLo[j]) || math.IsNaN(p.ColUp[j]) || p.ColLo[j] > p.ColUp[j] {
 			return fmt.Errorf("lp: column %d: bad objective or bounds [%g, %g]", j, p.ColLo[j], p.ColUp[j])
 		}
+	}
+	var last []int // 1 + the last row in which each column was seen
+	if m > 0 {
+		last = make([]int, n)
 	}
 	for i := 0; i < m; i++ {
 		if math.IsNaN(p.RowLo[i]) || math.IsNaN(p.RowUp[i]) || p.RowLo[i] > p.RowUp[i] {
@@ -101,6 +115,10 @@ func (p *Problem) Validate() error {
 			if math.IsNaN(p.Value[k]) || math.IsInf(p.Value[k], 0) {
 				return fmt.Errorf("lp: row %d: coefficient %g", i, p.Value[k])
 			}
+			if last[p.Index[k]] == i+1 {
+				return fmt.Errorf("lp: row %d: column %d appears twice", i, p.Index[k])
+			}
+			last[p.Index[k]] = i + 1
 		}
 	}
 	return nil
