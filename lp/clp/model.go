@@ -1,0 +1,363 @@
+package clp
+
+/*
+#include <stdlib.h>
+#include <coin/Clp_C_Interface.h>
+*/
+import "C"
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"math"
+	"runtime"
+	"time"
+	"unsafe"
+
+	"github.com/pickwise/pickwise/lp"
+)
+
+// Model is a linear program loaded into CLP. It keeps CLP's basis between
+// solves, so rows appended with AddRows are handled by a warm-started dual
+// simplex. A Model must be freed with Close; a Model that becomes
+// unreachable without Close is freed by the garbage collector, but CLP's
+// memory is invisible to the Go runtime, so relying on that can exhaust
+// memory. A Model is not safe for concurrent use.
+type Model struct {
+	// LogLevel, MaxSeconds and Algorithm mean the same as in Solver. They
+	// are read at each Solve; Algorithm applies to the first solve only.
+	LogLevel   int
+	MaxSeconds float64
+	Algorithm  Algorithm
+
+	ptr     unsafe.Pointer
+	cleanup runtime.Cleanup
+	solved  bool // CLP holds a basis from an earlier solve
+	rows    int
+	cols    int
+}
+
+// ErrClosed is returned by the methods of a Model after Close.
+var ErrClosed = errors.New("clp: model is closed")
+
+// NewModel loads p into a new CLP model. p is copied; later changes to p do
+// not affect the model.
+func NewModel(p *lp.Problem) (*Model, error) {
+	if err := p.Validate(); err != nil {
+		return nil, fmt.Errorf("clp: %w", err)
+	}
+	if err := checkDuplicates(p.NumCols(), p.RowStart, p.Index); err != nil {
+		return nil, fmt.Errorf("clp: %w", err)
+	}
+	if p.NumNonzeros() > math.MaxInt32 || p.NumCols() > math.MaxInt32-1 || p.NumRows() > math.MaxInt32-1 {
+		return nil, fmt.Errorf("clp: problem too large for 32-bit indices: %d columns, %d rows, %d nonzeros",
+			p.NumCols(), p.NumRows(), p.NumNonzeros())
+	}
+	m := &Model{ptr: C.Clp_newModel()}
+	if m.ptr == nil {
+		return nil, errors.New("clp: cannot allocate a model")
+	}
+	m.cleanup = runtime.AddCleanup(m, func(ptr unsafe.Pointer) { C.Clp_deleteModel(ptr) }, m.ptr)
+	C.Clp_setLogLevel(m.ptr, 0)
+
+	// Load the columns with an empty matrix, then append the rows straight
+	// from the CSR arrays: only the row starts need converting, and CLP
+	// makes its own column-major copy of the matrix.
+	n := p.NumCols()
+	zeros := make([]C.CoinBigIndex, n+1)
+	var dummyIndex C.int
+	var dummyValue C.double
+	C.Clp_loadProblem(m.ptr, C.int(n), 0, &zeros[0], &dummyIndex, &dummyValue,
+		dptr(p.ColLo), dptr(p.ColUp), dptr(p.Obj), nil, nil)
+	m.cols = n
+	if err := m.addRows(p.RowStart, p.Index, p.Value, p.RowLo, p.RowUp); err != nil {
+		m.Close()
+		return nil, err
+	}
+	runtime.KeepAlive(p)
+	return m, nil
+}
+
+// Close frees the CLP model. It is safe to call more than once.
+func (m *Model) Close() {
+	if m.ptr == nil {
+		return
+	}
+	m.cleanup.Stop()
+	C.Clp_deleteModel(m.ptr)
+	m.ptr = nil
+}
+
+// NumRows returns the number of rows in the model.
+func (m *Model) NumRows() int { return m.rows }
+
+// NumCols returns the number of columns in the model.
+func (m *Model) NumCols() int { return m.cols }
+
+// Rows is a batch of rows to append to a Model, in the compressed sparse
+// row form of lp.Problem: row k is
+//
+//	Lo[k] <= sum of Value[e]*x[Index[e]] over Start[k] <= e < Start[k+1] <= Up[k].
+//
+// The zero value is an empty batch; use Add to build it.
+type Rows struct {
+	Start  []int     // len = rows+1, or 0 when empty
+	Index  []int32   // column index of each entry
+	Value  []float64 // coefficient of each entry
+	Lo, Up []float64 // row bounds
+}
+
+// Add appends the row lo <= sum_k val[k]*x[idx[k]] <= up to the batch.
+func (r *Rows) Add(idx []int, val []float64, lo, up float64) {
+	if len(r.Start) == 0 {
+		r.Start = append(r.Start, 0)
+	}
+	for k, j := range idx {
+		r.Index = append(r.Index, int32(j))
+		r.Value = append(r.Value, val[k])
+	}
+	r.Start = append(r.Start, len(r.Index))
+	r.Lo = append(r.Lo, lo)
+	r.Up = append(r.Up, up)
+}
+
+// Len returns the number of rows in the batch.
+func (r *Rows) Len() int { return len(r.Lo) }
+
+// AddRows appends the rows of r to the model. The next Solve starts from
+// the current basis with the new rows' slacks basic, so it needs only the
+// dual simplex iterations that the new rows make necessary.
+func (m *Model) AddRows(r *Rows) error {
+	if m.ptr == nil {
+		return ErrClosed
+	}
+	if err := checkRows(m.cols, r); err != nil {
+		return fmt.Errorf("clp: adding rows: %w", err)
+	}
+	if err := m.addRows(r.Start, r.Index, r.Value, r.Lo, r.Up); err != nil {
+		return fmt.Errorf("clp: adding rows: %w", err)
+	}
+	return nil
+}
+
+// addRows passes a checked CSR batch to CLP. Index, value and bound slices
+// are passed as they are (int32 and float64 have C's layout and the slices
+// hold no Go pointers); only the starts are converted.
+func (m *Model) addRows(start []int, index []int32, value []float64, lo, up []float64) error {
+	k := len(lo)
+	if k == 0 {
+		return nil
+	}
+	if m.rows+k > math.MaxInt32-1 {
+		return fmt.Errorf("model would have %d rows, too many for 32-bit indices", m.rows+k)
+	}
+	if start[k]-start[0] > math.MaxInt32 {
+		return fmt.Errorf("%d nonzeros in one batch, too many for 32-bit indices", start[k]-start[0])
+	}
+	base := start[0]
+	cs := make([]C.CoinBigIndex, k+1)
+	for i := range cs {
+		cs[i] = C.CoinBigIndex(start[i] - base)
+	}
+	var ip *C.int
+	var vp *C.double
+	var dummyIndex C.int
+	var dummyValue C.double
+	if start[k] > base {
+		ip = (*C.int)(unsafe.Pointer(&index[base]))
+		vp = (*C.double)(unsafe.Pointer(&value[base]))
+	} else {
+		ip, vp = &dummyIndex, &dummyValue
+	}
+	C.Clp_addRows(m.ptr, C.int(k), dptr(lo), dptr(up), &cs[0], ip, vp)
+	m.rows += k
+	runtime.KeepAlive(m)
+	return nil
+}
+
+// Solve solves the model. The first call uses m.Algorithm; later calls
+// re-solve with the dual simplex from the basis left by the previous call.
+// A solve that does not end optimal returns a *lp.StatusError; a context
+// that is done before the solve, or that ends during it, returns an error
+// wrapping the context's error.
+func (m *Model) Solve(ctx context.Context) (*lp.Solution, error) {
+	if m.ptr == nil {
+		return nil, ErrClosed
+	}
+	if err := ctx.Err(); err != nil {
+		return nil, fmt.Errorf("clp: %w", err)
+	}
+	secs := m.MaxSeconds
+	if d, ok := ctx.Deadline(); ok {
+		rem := time.Until(d).Seconds()
+		if rem <= 0 {
+			return nil, fmt.Errorf("clp: %w", context.DeadlineExceeded)
+		}
+		if secs <= 0 || rem < secs {
+			secs = rem
+		}
+	}
+	C.Clp_setLogLevel(m.ptr, C.int(m.LogLevel))
+	if secs > 0 {
+		C.Clp_setMaximumSeconds(m.ptr, C.double(secs))
+	} else {
+		C.Clp_setMaximumSeconds(m.ptr, -1)
+	}
+
+	alg := m.Algorithm
+	if m.solved {
+		alg = Dual
+	}
+	switch alg {
+	case Dual:
+		C.Clp_dual(m.ptr, 0)
+	case Primal:
+		C.Clp_primal(m.ptr, 0)
+	case Automatic:
+		C.Clp_initialSolve(m.ptr)
+	case DualPresolve:
+		C.Clp_initialDualSolve(m.ptr)
+	default:
+		return nil, fmt.Errorf("clp: unknown algorithm %d", int(alg))
+	}
+	m.solved = true
+	defer runtime.KeepAlive(m)
+
+	if err := ctx.Err(); err != nil {
+		return nil, fmt.Errorf("clp: solve interrupted: %w", err)
+	}
+	if err := m.statusError(); err != nil {
+		return nil, err
+	}
+	sol := &lp.Solution{
+		Objective:  float64(C.Clp_objectiveValue(m.ptr)),
+		X:          make([]float64, m.cols),
+		RowDual:    make([]float64, m.rows),
+		Iterations: int(C.Clp_numberIterations(m.ptr)),
+	}
+	if m.cols > 0 {
+		copy(sol.X, unsafe.Slice((*float64)(unsafe.Pointer(C.Clp_getColSolution(m.ptr))), m.cols))
+	}
+	if m.rows > 0 {
+		copy(sol.RowDual, unsafe.Slice((*float64)(unsafe.Pointer(C.Clp_getRowPrice(m.ptr))), m.rows))
+	}
+	return sol, nil
+}
+
+// statusError maps CLP's status and secondary status after a solve to nil
+// (optimal) or a *lp.StatusError.
+func (m *Model) statusError() error {
+	st := int(C.Clp_status(m.ptr))
+	sec := int(C.Clp_secondaryStatus(m.ptr))
+	e := &lp.StatusError{Backend: "clp"}
+	switch st {
+	case 0:
+		if sec == 0 {
+			return nil
+		}
+		// Optimal for the scaled problem; accept the unscaled solution
+		// only if its infeasibilities are within a loose tolerance.
+		C.Clp_checkSolution(m.ptr)
+		pinf := float64(C.Clp_sumPrimalInfeasibilities(m.ptr))
+		dinf := float64(C.Clp_sumDualInfeasibilities(m.ptr))
+		if pinf <= 1e-6 && dinf <= 1e-6 {
+			return nil
+		}
+		e.Status = lp.NumericalTrouble
+		e.Detail = fmt.Sprintf("optimal only when scaled (secondary status %d): unscaled primal infeasibility %g, dual infeasibility %g",
+			sec, pinf, dinf)
+	case 1:
+		e.Status = lp.Infeasible
+		if sec == 1 {
+			e.Detail = "dual objective limit reached"
+		}
+	case 2:
+		e.Status = lp.Unbounded
+		e.Detail = "dual infeasible"
+	case 3:
+		if sec == 9 {
+			e.Status = lp.TimeLimit
+			e.Detail = fmt.Sprintf("after %d iterations", int(C.Clp_numberIterations(m.ptr)))
+		} else {
+			e.Status = lp.IterationLimit
+			e.Detail = fmt.Sprintf("after %d iterations", int(C.Clp_numberIterations(m.ptr)))
+		}
+	case 4:
+		e.Status = lp.NumericalTrouble
+		if sec == 1 {
+			e.Detail = "stopped on errors; probably primal infeasible"
+		} else {
+			e.Detail = fmt.Sprintf("stopped on errors (secondary status %d)", sec)
+		}
+	default:
+		e.Status = lp.Unknown
+		e.Detail = fmt.Sprintf("CLP status %d, secondary status %d", st, sec)
+	}
+	return e
+}
+
+// checkRows checks a batch of rows against a model with n columns.
+func checkRows(n int, r *Rows) error {
+	k := len(r.Lo)
+	if len(r.Up) != k {
+		return fmt.Errorf("%d row lower bounds but %d upper", k, len(r.Up))
+	}
+	if k == 0 {
+		return nil
+	}
+	if len(r.Start) != k+1 {
+		return fmt.Errorf("%d rows but %d row starts", k, len(r.Start))
+	}
+	if len(r.Index) != len(r.Value) {
+		return fmt.Errorf("%d indices but %d values", len(r.Index), len(r.Value))
+	}
+	if r.Start[0] < 0 || r.Start[k] > len(r.Index) {
+		return fmt.Errorf("row starts span [%d, %d], outside the %d entries", r.Start[0], r.Start[k], len(r.Index))
+	}
+	for i := 0; i < k; i++ {
+		if r.Start[i] > r.Start[i+1] {
+			return fmt.Errorf("row %d: start %d after next start %d", i, r.Start[i], r.Start[i+1])
+		}
+		if math.IsNaN(r.Lo[i]) || math.IsNaN(r.Up[i]) || r.Lo[i] > r.Up[i] {
+			return fmt.Errorf("row %d: bad bounds [%g, %g]", i, r.Lo[i], r.Up[i])
+		}
+		for e := r.Start[i]; e < r.Start[i+1]; e++ {
+			if j := r.Index[e]; j < 0 || int(j) >= n {
+				return fmt.Errorf("row %d: column index %d out of range [0, %d)", i, j, n)
+			}
+			if v := r.Value[e]; math.IsNaN(v) || math.IsInf(v, 0) {
+				return fmt.Errorf("row %d: coefficient %g", i, v)
+			}
+		}
+	}
+	return checkDuplicates(n, r.Start, r.Index)
+}
+
+// checkDuplicates reports a column index repeated within a row; CLP does
+// not accept duplicate entries.
+func checkDuplicates(n int, start []int, index []int32) error {
+	if len(start) < 2 {
+		return nil
+	}
+	last := make([]int32, n) // 1 + the last row in which each column was seen
+	for i := 0; i+1 < len(start); i++ {
+		for e := start[i]; e < start[i+1]; e++ {
+			j := index[e]
+			if last[j] == int32(i+1) {
+				return fmt.Errorf("row %d: column %d appears twice", i, j)
+			}
+			last[j] = int32(i + 1)
+		}
+	}
+	return nil
+}
+
+// dptr returns a C pointer to the first element of s, or nil for an empty
+// slice.
+func dptr(s []float64) *C.double {
+	if len(s) == 0 {
+		return nil
+	}
+	return (*C.double)(unsafe.Pointer(&s[0]))
+}
