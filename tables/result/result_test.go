@@ -1,0 +1,319 @@
+package result_test
+
+import (
+	"bytes"
+	"context"
+	"encoding/json"
+	"errors"
+	"math"
+	"math/big"
+	"math/rand/v2"
+	"strings"
+	"testing"
+
+	"github.com/pickwise/pickwise/discretize"
+	"github.com/pickwise/pickwise/tables"
+	"github.com/pickwise/pickwise/tables/exact"
+	"github.com/pickwise/pickwise/tables/result"
+)
+
+func model(t testing.TB, step float64, pmfs ...[]float64) *discretize.Model {
+	t.Helper()
+	m := &discretize.Model{Step: step}
+	for i, w := range pmfs {
+		p, err := discretize.Quantize(int(w[0]), w[1:])
+		if err != nil {
+			t.Fatal(err)
+		}
+		m.Channels = append(m.Channels, discretize.Channel{Name: string(rune('A' + i)), Kind: "pmf", PMF: p})
+	}
+	return m
+}
+
+func randomModel(t testing.TB, rng *rand.Rand, n int) *discretize.Model {
+	var pmfs [][]float64
+	for i := 0; i < n; i++ {
+		k := 2 + rng.IntN(3)
+		width := k - 1 + rng.IntN(2)
+		w := make([]float64, width+2)
+		w[0] = float64(-rng.IntN(width + 1))
+		w[1], w[width+1] = 0.1+rng.Float64(), 0.1+rng.Float64()
+		for j := 2; j <= width && k > 2; j++ {
+			if rng.IntN(2) == 0 {
+				w[j] = 0.1 + rng.Float64()
+			}
+		}
+		pmfs = append(pmfs, w)
+	}
+	return model(t, 1, pmfs...)
+}
+
+func solve(t testing.TB, m *discretize.Model) *result.Solution {
+	t.Helper()
+	s, err := result.Solve(context.Background(), m, result.Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	return s
+}
+
+// checkBounds asserts lower <= LP optimum <= upper and a relative gap of
+// at most 1e-9. The lower bound is a Bayes risk for a decision maker who
+// sees every reading; falling short of the LP value would mean the
+// formulation is not exact.
+func checkBounds(t *testing.T, name string, s *result.Solution) {
+	t.Helper()
+	lo, up := result.Float(s.Lower), result.Float(s.Upper)
+	opt := s.Objective
+	tol := 1e-12 * math.Max(opt, 1e-300)
+	if lo > opt+tol || opt > up+tol {
+		t.Errorf("%s: bounds [%.17g, %.17g] do not hold the LP optimum %.17g", name, lo, up, opt)
+	}
+	gap := new(big.Rat).Sub(s.Upper, s.Lower)
+	if g := result.Float(gap); g > 1e-9*opt || g < 0 {
+		t.Errorf("%s: gap %.3g exceeds 1e-9 times the optimum %.17g", name, g, opt)
+	}
+}
+
+// TestWorkedExampleExact: A exact, B with noise -1/+1 (probability 1/2
+// each); the minimax regret is exactly 1/4 at every step 1/k (worked
+// example of the field, derived by hand in lp/minimax's tests). Both bounds
+// must be exactly 1/4.
+func TestWorkedExampleExact(t *testing.T) {
+	for _, k := range []int{1, 2, 4, 8} {
+		w := make([]float64, 2*k+2)
+		w[0] = float64(-k)
+		w[1], w[2*k+1] = 0.5, 0.5
+		m := model(t, 1/float64(k), []float64{0, 1}, w)
+		s := solve(t, m)
+		quarter := big.NewRat(1, 4)
+		if lo := result.Units(s.Lower, m.Step); lo.Cmp(quarter) != 0 {
+			t.Errorf("k=%d: lower bound %s, want exactly 1/4", k, lo.RatString())
+		}
+		if up := result.Units(s.Upper, m.Step); up.Cmp(quarter) != 0 {
+			t.Errorf("k=%d: upper bound %s, want exactly 1/4", k, up.RatString())
+		}
+	}
+}
+
+// TestBoundsRandom checks the certificate on seeded random pmf models with
+// two and three channels.
+func TestBoundsRandom(t *testing.T) {
+	rng := rand.New(rand.NewPCG(31, 41))
+	for trial := 0; trial < 24; trial++ {
+		m := randomModel(t, rng, 2+trial%2)
+		checkBounds(t, "random model", solve(t, m))
+	}
+}
+
+// TestBoundsNormal checks the certificate on a two-channel normal model and
+// a three-channel one with unequal noise.
+func TestBoundsNormal(t *testing.T) {
+	for _, tc := range []struct {
+		name  string
+		step  float64
+		tail  float64
+		sigma []float64
+	}{
+		{"two channels, s=1 at step 0.1", 0.1, 1e-9, []float64{0, 1}},
+		{"three channels, sigma 1,1,2 at step 1", 1, 0.0124, []float64{1, 1, 2}},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			m := &discretize.Model{Step: tc.step, Tail: tc.tail}
+			for i, sg := range tc.sigma {
+				var n discretize.Noise = discretize.Exact{}
+				if sg > 0 {
+					n = discretize.Normal{Sigma: sg}
+				}
+				p, cut, err := n.Lattice(tc.step, tc.tail)
+				if err != nil {
+					t.Fatal(err)
+				}
+				m.Channels = append(m.Channels, discretize.Channel{Name: string(rune('A' + i)), Kind: n.Kind(), PMF: p, Cut: cut})
+			}
+			checkBounds(t, tc.name, solve(t, m))
+		})
+	}
+}
+
+// TestUniformPrior: a prior that is not least favourable still gives a
+// valid lower bound, below the optimum (every prior's Bayes risk bounds
+// the minimax regret from below).
+func TestUniformPrior(t *testing.T) {
+	rng := rand.New(rand.NewPCG(8, 8))
+	for trial := 0; trial < 4; trial++ {
+		m := randomModel(t, rng, 2+trial%2)
+		s := solve(t, m)
+		l := s.Layout
+		var cfgs [][]int
+		for _, q := range tables.Subsets(l.N()) {
+			tables.Configurations(l.N(), q, l.D, func(v []int) bool {
+				cfgs = append(cfgs, append([]int(nil), v...))
+				return true
+			})
+		}
+		w := make([]float64, len(cfgs))
+		for i := range w {
+			w[i] = 1
+		}
+		wq, err := exact.SnapWeights(w, result.ProbBits)
+		if err != nil {
+			t.Fatal(err)
+		}
+		br, err := exact.BayesRisk(l, cfgs, wq, result.ProbBits)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if br.Cmp(s.Lower) > 0 {
+			t.Errorf("trial %d: uniform prior's Bayes risk %v exceeds the least-favourable one %v", trial, result.Float(br), result.Float(s.Lower))
+		}
+		if br.Sign() <= 0 {
+			t.Errorf("trial %d: uniform prior's Bayes risk %v, want positive", trial, result.Float(br))
+		}
+	}
+}
+
+// fileOf solves a three-channel model and returns its result file as JSON.
+func fileOf(t *testing.T) []byte {
+	t.Helper()
+	m := model(t, 0.5, []float64{-1, 0.3, 0.4, 0.3}, []float64{0, 0.6, 0.1, 0.3}, []float64{-2, 0.2, 0.5, 0.3})
+	s := solve(t, m)
+	var buf bytes.Buffer
+	if err := result.NewFile(s, "").Encode(&buf); err != nil {
+		t.Fatal(err)
+	}
+	return buf.Bytes()
+}
+
+func verifyJSON(t *testing.T, data []byte) error {
+	t.Helper()
+	f, err := result.Decode(data, "test.json")
+	if err != nil {
+		t.Fatal(err)
+	}
+	_, err = result.Verify(f)
+	return err
+}
+
+// TestVerifyTampering: a result file verifies as written, and changing one
+// table probability, one pmf entry or one prior weight makes verification
+// fail with the item named.
+func TestVerifyTampering(t *testing.T) {
+	data := fileOf(t)
+	if err := verifyJSON(t, data); err != nil {
+		t.Fatalf("untouched file: %v", err)
+	}
+	edit := func(fn func(f *result.File)) []byte {
+		f, err := result.Decode(data, "x")
+		if err != nil {
+			t.Fatal(err)
+		}
+		fn(f)
+		var buf bytes.Buffer
+		f.Encode(&buf)
+		return buf.Bytes()
+	}
+	// A randomized cell: two positive probabilities.
+	ti, ci := -1, -1
+	f0, _ := result.Decode(data, "x")
+	for i, tb := range f0.Tables {
+		for j, c := range tb.Cells {
+			pos := 0
+			for _, p := range c.P {
+				if p != "0" {
+					pos++
+				}
+			}
+			if pos >= 2 && ti < 0 {
+				ti, ci = i, j
+			}
+		}
+	}
+	if ti < 0 {
+		t.Fatal("no randomized cell to tamper with")
+	}
+	for _, tc := range []struct {
+		name string
+		edit func(f *result.File)
+		want string
+	}{
+		{"table probability moved between channels", func(f *result.File) {
+			c := &f.Tables[ti].Cells[ci]
+			var a, b = -1, -1
+			for k, p := range c.P {
+				if p != "0" {
+					if a < 0 {
+						a = k
+					} else if b < 0 {
+						b = k
+					}
+				}
+			}
+			pa, _ := new(big.Rat).SetString(c.P[a])
+			pb, _ := new(big.Rat).SetString(c.P[b])
+			d := new(big.Rat).Mul(pa, big.NewRat(1, 2))
+			c.P[a] = new(big.Rat).Sub(pa, d).RatString()
+			c.P[b] = new(big.Rat).Add(pb, d).RatString()
+		}, "upper bound"},
+		{"table probability changed alone", func(f *result.File) {
+			c := &f.Tables[ti].Cells[ci]
+			for k, p := range c.P {
+				if p != "0" {
+					c.P[k] = "1/1024"
+					break
+				}
+			}
+		}, "sum to"},
+		{"pmf entry", func(f *result.File) {
+			f.Channels[1].Probs[0] = "1/2"
+		}, `channel "B"`},
+		{"prior weight", func(f *result.File) {
+			f.Prior[0].Weight = "1/3"
+		}, "prior weight 1"},
+		{"prior weight kept summing to 1", func(f *result.File) {
+			a, _ := new(big.Rat).SetString(f.Prior[0].Weight)
+			b, _ := new(big.Rat).SetString(f.Prior[1].Weight)
+			d := new(big.Rat).Mul(a, big.NewRat(1, 2))
+			f.Prior[0].Weight = new(big.Rat).Sub(a, d).RatString()
+			f.Prior[1].Weight = new(big.Rat).Add(b, d).RatString()
+		}, "lower bound"},
+		{"greedy figure", func(f *result.File) {
+			r, _ := new(big.Rat).SetString(f.Greedy.Regret)
+			f.Greedy.Regret = r.Add(r, big.NewRat(1, 1<<40)).RatString()
+		}, "greedy"},
+		{"upper bound figure", func(f *result.File) {
+			r, _ := new(big.Rat).SetString(f.Certificate.Upper)
+			f.Certificate.Upper = r.Sub(r, big.NewRat(1, 1<<40)).RatString()
+		}, "upper bound"},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			err := verifyJSON(t, edit(tc.edit))
+			var mm *result.Mismatch
+			if !errors.As(err, &mm) {
+				t.Fatalf("got %v, want a mismatch", err)
+			}
+			if !strings.Contains(err.Error(), tc.want) {
+				t.Errorf("mismatch %q does not name %q", err, tc.want)
+			}
+		})
+	}
+}
+
+// TestFileRoundTrip: the file decodes to the same figures and is byte for
+// byte the same when written twice.
+func TestFileRoundTrip(t *testing.T) {
+	a, b := fileOf(t), fileOf(t)
+	if !bytes.Equal(a, b) {
+		t.Fatal("two solves of the same model wrote different files")
+	}
+	var v map[string]any
+	if err := json.Unmarshal(a, &v); err != nil {
+		t.Fatal(err)
+	}
+	if v["format"] != result.Format {
+		t.Errorf("format %v", v["format"])
+	}
+	if _, err := result.Decode([]byte(`{"format":"other"}`), "x"); err == nil {
+		t.Error("a file of another format was accepted")
+	}
+}
