@@ -36,6 +36,11 @@ type Model struct {
 	solved  bool // CLP holds a basis from an earlier solve
 	rows    int
 	cols    int
+	// used[j] reports whether column j has an entry in some row; see
+	// emptyRay.
+	used []bool
+	// empty lists the rows without nonzero entries; see statusError.
+	empty []int
 }
 
 // ErrClosed is returned by the methods of a Model after Close.
@@ -71,6 +76,7 @@ func NewModel(p *lp.Problem) (*Model, error) {
 	C.Clp_loadProblem(m.ptr, C.int(n), 0, &zeros[0], &dummyIndex, &dummyValue,
 		dptr(p.ColLo), dptr(p.ColUp), dptr(p.Obj), nil, nil)
 	m.cols = n
+	m.used = make([]bool, n)
 	if err := m.addRows(p.RowStart, p.Index, p.Value, p.RowLo, p.RowUp); err != nil {
 		m.Close()
 		return nil, err
@@ -171,6 +177,18 @@ func (m *Model) addRows(start []int, index []int32, value []float64, lo, up []fl
 		ip, vp = &dummyIndex, &dummyValue
 	}
 	C.Clp_addRows(m.ptr, C.int(k), dptr(lo), dptr(up), &cs[0], ip, vp)
+	for i := range k {
+		nz := false
+		for e := start[i]; e < start[i+1]; e++ {
+			if value[e] != 0 {
+				m.used[index[e]] = true
+				nz = true
+			}
+		}
+		if !nz {
+			m.empty = append(m.empty, m.rows+i)
+		}
+	}
 	m.rows += k
 	runtime.KeepAlive(m)
 	return nil
@@ -223,6 +241,16 @@ func (m *Model) Solve(ctx context.Context) (*lp.Solution, error) {
 	}
 	m.solved = true
 	defer runtime.KeepAlive(m)
+	if C.Clp_status(m.ptr) == 1 && m.emptyRay() {
+		// CLP 1.17 scales a column without entries absurdly (by about
+		// 1e20) and then reports a feasible problem that is unbounded
+		// along such a column as primal infeasible. Unscaled, it gets
+		// the status right; only this rare outcome pays for the check.
+		scaling := C.Clp_scalingFlag(m.ptr)
+		C.Clp_scaling(m.ptr, 0)
+		C.Clp_primal(m.ptr, 0)
+		C.Clp_scaling(m.ptr, scaling)
+	}
 
 	if err := ctx.Err(); err != nil {
 		return nil, fmt.Errorf("clp: solve interrupted: %w", err)
@@ -243,6 +271,42 @@ func (m *Model) Solve(ctx context.Context) (*lp.Solution, error) {
 		copy(sol.RowDual, unsafe.Slice((*float64)(unsafe.Pointer(C.Clp_getRowPrice(m.ptr))), m.rows))
 	}
 	return sol, nil
+}
+
+// emptyRay reports whether some column without entries improves the
+// objective without limit: negative cost and no upper bound, or positive
+// cost and no lower bound.
+func (m *Model) emptyRay() bool {
+	if m.cols == 0 {
+		return false
+	}
+	obj := unsafe.Slice((*float64)(unsafe.Pointer(C.Clp_getObjCoefficients(m.ptr))), m.cols)
+	lo := unsafe.Slice((*float64)(unsafe.Pointer(C.Clp_getColLower(m.ptr))), m.cols)
+	up := unsafe.Slice((*float64)(unsafe.Pointer(C.Clp_getColUpper(m.ptr))), m.cols)
+	for j, u := range m.used {
+		if u {
+			continue
+		}
+		if obj[j] < 0 && up[j] >= 1e30 || obj[j] > 0 && lo[j] <= -1e30 {
+			return true
+		}
+	}
+	return false
+}
+
+// badEmptyRow returns a row without entries whose bounds exclude 0, or -1.
+func (m *Model) badEmptyRow() int {
+	if len(m.empty) == 0 {
+		return -1
+	}
+	lo := unsafe.Slice((*float64)(unsafe.Pointer(C.Clp_getRowLower(m.ptr))), m.rows)
+	up := unsafe.Slice((*float64)(unsafe.Pointer(C.Clp_getRowUpper(m.ptr))), m.rows)
+	for _, i := range m.empty {
+		if lo[i] > 0 || up[i] < 0 {
+			return i
+		}
+	}
+	return -1
 }
 
 // statusError maps CLP's status and secondary status after a solve to nil
@@ -285,7 +349,13 @@ func (m *Model) statusError() error {
 		}
 	case 4:
 		e.Status = lp.NumericalTrouble
-		if sec == 1 {
+		if i := m.badEmptyRow(); sec == 6 && i >= 0 {
+			// CLP's check of empty rows and columns gives up
+			// without a verdict; an empty row whose bounds exclude 0
+			// is a plain infeasibility.
+			e.Status = lp.Infeasible
+			e.Detail = fmt.Sprintf("row %d has no entries and its bounds exclude 0", i)
+		} else if sec == 1 {
 			e.Detail = "stopped on errors; probably primal infeasible"
 		} else {
 			e.Detail = fmt.Sprintf("stopped on errors (secondary status %d)", sec)

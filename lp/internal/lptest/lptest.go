@@ -151,6 +151,35 @@ func Hand() []Case {
 		p.AddRow([]int{x, y}, []float64{1, -1}, -inf, 1)
 		cases = append(cases, Case{Name: "unbounded ray", Problem: p, Status: lp.Unbounded})
 	}
+	// min -5a - 3b + 5c, a <= 1, b in [0, 2], c <= -1, -a - 3b = 3.
+	// By hand: a = -3, b = 0 is feasible and c, in no row, decreases
+	// without limit: unbounded. (CLP 1.17 with scaling calls this
+	// infeasible; the clp package corrects it.)
+	{
+		p := &lp.Problem{}
+		a := p.AddCol(-5, -inf, 1)
+		b := p.AddCol(-3, 0, 2)
+		p.AddCol(5, -inf, -1)
+		p.AddRow([]int{a, b}, []float64{-1, -3}, 3, 3)
+		cases = append(cases, Case{Name: "unbounded along a column in no row", Problem: p, Status: lp.Unbounded})
+	}
+	// min x, x in [1, 3], and a row with no entries whose bounds [-1, 1]
+	// contain 0: by hand x = 1, objective 1, the empty row's dual 0.
+	{
+		p := &lp.Problem{}
+		p.AddCol(1, 1, 3)
+		p.AddRow(nil, nil, -1, 1)
+		cases = append(cases, Case{Name: "row without entries", Problem: p, Status: lp.Optimal,
+			Objective: 1, X: []float64{1}, RowDual: []float64{0}})
+	}
+	// The same with the empty row's bounds [1, 2]: 0 is outside,
+	// infeasible (by hand).
+	{
+		p := &lp.Problem{}
+		p.AddCol(1, 1, 3)
+		p.AddRow(nil, nil, 1, 2)
+		cases = append(cases, Case{Name: "row without entries excluding 0", Problem: p, Status: lp.Infeasible})
+	}
 	// min x, x free, no rows: unbounded below (by hand).
 	{
 		p := &lp.Problem{}
