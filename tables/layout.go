@@ -78,6 +78,22 @@ func NewLayout(m *discretize.Model) (*Layout, error) {
 // N returns the number of channels.
 func (l *Layout) N() int { return len(l.Lo) }
 
+// Widen raises the grouping distance T, and with it D, by k >= 0 steps. A
+// larger T lets the tables use the readings of more channels below the top
+// group: the rule class grows, so the optimum can only fall (towards the
+// unrestricted optimum), and the LP grows with it.
+func (l *Layout) Widen(k int) error {
+	if k < 0 {
+		return fmt.Errorf("tables: cannot widen the grouping distance by %d steps", k)
+	}
+	l.T += k
+	l.D += k
+	return nil
+}
+
+// Reach returns how many steps T exceeds its least value G + S.
+func (l *Layout) Reach() int { return l.T - l.G - l.S }
+
 // Below reports whether channel k is certainly below channel j given their
 // readings rk and rj: every pair of values consistent with the readings has
 // v_k < v_j.

@@ -18,6 +18,7 @@ differences, randomized cells marked.`)
 	width := fs.Int("width", plot.DefaultWidth, "width in pixels")
 	height := fs.Int("height", plot.DefaultHeight, "height in pixels")
 	solverName := fs.String("solver", "clp", "LP backend when SOURCE is a model: clp or gonum")
+	reach := fs.Int("reach", 0, "when SOURCE is a model: widen the grouping distance T by this many steps")
 	pos, st, done := a.parse(fs, args)
 	if done {
 		return st
@@ -29,7 +30,7 @@ differences, randomized cells marked.`)
 	if _, err := plot.FormatFor(*out); err != nil {
 		return a.fail(exitUsage, "-o: %v", err)
 	}
-	sol, _, status, err := loadSource(pos[0], *solverName)
+	sol, _, status, err := loadSource(pos[0], *solverName, *reach)
 	if err != nil {
 		return a.fail(status, "%v", err)
 	}

@@ -76,6 +76,7 @@ instead; -o also writes the full result file for "pickwise verify" and
 	asJSON := fs.Bool("json", false, "print one JSON object instead of the summary")
 	out := fs.String("o", "", "write the result file (JSON) to this path")
 	solverName := fs.String("solver", "clp", "LP backend: clp or gonum (pure Go, small models only)")
+	reach := fs.Int("reach", 0, "widen the grouping distance T by this many steps: a larger LP, an optimum no higher")
 	pos, st, done := a.parse(fs, args)
 	if done {
 		return st
@@ -92,7 +93,10 @@ instead; -o also writes the full result file for "pickwise verify" and
 	if err != nil {
 		return a.fail(exitUsage, "%v", err)
 	}
-	sol, err := result.Solve(context.Background(), m, result.Options{Solver: solver})
+	if *reach < 0 {
+		return a.fail(exitUsage, "--reach %d: must be >= 0", *reach)
+	}
+	sol, err := result.Solve(context.Background(), m, result.Options{Solver: solver, Reach: *reach})
 	if err != nil {
 		return a.fail(solveStatus(err), "%s: %v", pos[0], err)
 	}
@@ -181,7 +185,11 @@ func writeSummary(w io.Writer, sol *result.Solution, timing bool) {
 	t.Render()
 
 	opt := sol.Upper
-	fmt.Fprintf(w, "\nWorst-case regret (expected shortfall from the true best%s):\n\n", u)
+	unitNote := ""
+	if m.Unit != "" {
+		unitNote = ", in " + m.Unit
+	}
+	fmt.Fprintf(w, "\nWorst-case regret%s (expected shortfall of the chosen channel from the truly best one):\n\n", unitNote)
 	t = newTable(w)
 	t.Header([]string{"rule", "worst-case regret" + u, "ratio to optimum", "worst configuration (true values" + u + ")"})
 	t.Append([]string{"optimal (tables)", num(result.Float(result.Units(sol.Upper, m.Step))), "1", valuesText(m, sol.Optimal.Worst)})

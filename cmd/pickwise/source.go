@@ -12,7 +12,7 @@ import (
 // loadSource returns the solution held by SOURCE: a result file (.json) is
 // read as written; a model file is solved first. The second value is the
 // model as given when known.
-func loadSource(path, solverName string) (*result.Solution, string, int, error) {
+func loadSource(path, solverName string, reach int) (*result.Solution, string, int, error) {
 	if strings.EqualFold(filepath.Ext(path), ".json") {
 		f, err := result.ReadFile(path)
 		if err != nil {
@@ -24,6 +24,9 @@ func loadSource(path, solverName string) (*result.Solution, string, int, error) 
 		}
 		return s, f.ModelTOML, 0, nil
 	}
+	if reach < 0 {
+		return nil, "", exitUsage, fmt.Errorf("--reach %d: must be >= 0", reach)
+	}
 	solver, err := solverByName(solverName)
 	if err != nil {
 		return nil, "", exitUsage, err
@@ -32,7 +35,7 @@ func loadSource(path, solverName string) (*result.Solution, string, int, error) 
 	if err != nil {
 		return nil, "", exitUsage, err
 	}
-	s, err := result.Solve(context.Background(), m, result.Options{Solver: solver})
+	s, err := result.Solve(context.Background(), m, result.Options{Solver: solver, Reach: reach})
 	if err != nil {
 		return nil, "", solveStatus(err), fmt.Errorf("%s: %w", path, err)
 	}

@@ -34,6 +34,7 @@ Formats:
 	title := fs.String("title", "", "title of the md and html procedure")
 	ascii := fs.Bool("ascii", false, "draw text tables with ASCII characters only")
 	solverName := fs.String("solver", "clp", "LP backend when SOURCE is a model: clp or gonum")
+	reach := fs.Int("reach", 0, "when SOURCE is a model: widen the grouping distance T by this many steps")
 	pos, st, done := a.parse(fs, args)
 	if done {
 		return st
@@ -54,7 +55,7 @@ Formats:
 			return a.fail(exitUsage, "--prefix: %v", err)
 		}
 	}
-	sol, _, status, err := loadSource(pos[0], *solverName)
+	sol, _, status, err := loadSource(pos[0], *solverName, *reach)
 	if err != nil {
 		return a.fail(status, "%v", err)
 	}
@@ -101,4 +102,3 @@ Formats:
 	}
 	return exitOK
 }
-

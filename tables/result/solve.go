@@ -37,6 +37,9 @@ type Options struct {
 	// MaxNonzeros refuses models whose LP is estimated to be larger
 	// (0: minimax's default).
 	MaxNonzeros float64
+	// Reach widens the grouping distance T by this many steps (see
+	// tables.Layout.Widen): a larger LP whose optimum is no higher.
+	Reach int
 }
 
 // Figure is the exact worst-case regret of a rule.
@@ -95,6 +98,9 @@ func Solve(ctx context.Context, m *discretize.Model, opt Options) (*Solution, er
 	if err != nil {
 		return nil, err
 	}
+	if err := l.Widen(opt.Reach); err != nil {
+		return nil, err
+	}
 	solver := opt.Solver
 	if solver == nil {
 		solver = clp.Solver{}
@@ -126,22 +132,22 @@ func Solve(ctx context.Context, m *discretize.Model, opt Options) (*Solution, er
 	s.Upper = up.Regret
 	s.Optimal = Figure{Regret: up.Regret, Worst: up.Values}
 
-	prior := f.Prior(sol.RowDual)
-	if prior == nil {
+	if sol.RowDual == nil {
 		return nil, fmt.Errorf("the %s backend gave no dual solution: the lower bound needs one", solver.Name())
 	}
-	w, err := exact.SnapWeights(prior, ProbBits)
-	if err != nil {
-		return nil, err
-	}
-	for k, x := range w {
-		if x != 0 {
-			s.Configs = append(s.Configs, append([]int(nil), f.Config(k)...))
-			s.Weights = append(s.Weights, x)
+	if prior := f.Prior(sol.RowDual); prior != nil {
+		w, err := exact.SnapWeights(prior, ProbBits)
+		if err != nil {
+			return nil, err
+		}
+		for k, x := range w {
+			if x != 0 {
+				s.Configs = append(s.Configs, append([]int(nil), f.Config(k)...))
+				s.Weights = append(s.Weights, x)
+			}
 		}
 	}
-	s.Lower, err = exact.BayesRisk(l, s.Configs, s.Weights, ProbBits)
-	if err != nil {
+	if s.Lower, err = lowerBound(l, s.Configs, s.Weights, ProbBits); err != nil {
 		return nil, err
 	}
 	t3 := time.Now()
@@ -188,4 +194,14 @@ func Units(steps *big.Rat, step float64) *big.Rat {
 func Float(r *big.Rat) float64 {
 	f, _ := r.Float64()
 	return f
+}
+
+// lowerBound returns the exact Bayes risk of the prior, or 0 for an empty
+// prior (every regret is at least 0: a valid, if weak, bound; it is the
+// bound when the LP's duals all vanish, that is when the optimum is 0).
+func lowerBound(l *tables.Layout, configs [][]int, w []uint64, bits uint) (*big.Rat, error) {
+	if len(configs) == 0 {
+		return new(big.Rat), nil
+	}
+	return exact.BayesRisk(l, configs, w, bits)
 }

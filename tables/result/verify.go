@@ -97,8 +97,11 @@ func (f *File) Solution() (*Solution, error) {
 	if err != nil {
 		return nil, mismatch("channels", "%v", err)
 	}
+	if reach := f.Layout.T - l.T; reach > 0 {
+		l.Widen(reach)
+	}
 	if got := (FileLayout{G: l.G, S: l.S, T: l.T, D: l.D}); got != f.Layout {
-		return nil, mismatch("layout", "stated %+v, the pmfs give %+v", f.Layout, got)
+		return nil, mismatch("layout", "stated %+v, the pmfs give %+v (T may exceed G+S, with D = T+S)", f.Layout, got)
 	}
 	bits := f.ProbBits
 	if bits == 0 || bits > 62 {
@@ -245,7 +248,7 @@ func Verify(f *File) (*Report, error) {
 	rep.Upper = upU
 
 	// Lower bound: the exact Bayes risk of the prior as written.
-	lo, err := exact.BayesRisk(l, s.Configs, s.Weights, s.ProbBits)
+	lo, err := lowerBound(l, s.Configs, s.Weights, s.ProbBits)
 	if err != nil {
 		return nil, mismatch("prior", "%v", err)
 	}
