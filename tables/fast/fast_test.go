@@ -2,6 +2,7 @@ package fast
 
 import (
 	"fmt"
+	"context"
 	"math"
 	"math/rand/v2"
 	"runtime"
@@ -210,6 +211,7 @@ func TestAgreesWithDirect(t *testing.T) {
 		{"three channels", 3, 3, 2, 4},
 		{"three channels wide", 4, 3, 4, 5},
 		{"four channels", 5, 4, 2, 3},
+		{"four channels wide", 7, 4, 2, 5},
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
@@ -220,5 +222,217 @@ func TestAgreesWithDirect(t *testing.T) {
 				t.Logf("%s: D=%d largest difference %.3g absolute, %.3g relative", rc.name, l.D, a, r)
 			}
 		})
+	}
+}
+
+// dyadicTable is randomTable with probabilities that are multiples of 1/8,
+// so that every regret is a short dyadic rational computed without
+// round-off by both evaluators.
+func dyadicTable(l *tables.Layout, rng *rand.Rand, d int) *tables.Optimal {
+	o := randomTable(l, rng, d)
+	for _, tab := range o.Tables {
+		for _, c := range tab.Cells {
+			var alive []int
+			for i, ch := range tab.Members {
+				c.P[i] = 0
+				if c.Alive.Has(ch) {
+					alive = append(alive, i)
+				}
+			}
+			for range 8 {
+				c.P[alive[rng.IntN(len(alive))]] += 0.125
+			}
+		}
+	}
+	return o
+}
+
+// TestWorstCaseTies compares WorstCase with tables.Layout.WorstCase on
+// models whose noise probabilities and rule probabilities are dyadic with
+// few digits: every regret is then exact in float64 in both evaluators, so
+// the two must agree bit for bit, including which configuration wins among
+// the many that tie at the worst case (the first in enumeration order).
+func TestWorstCaseTies(t *testing.T) {
+	two := pmfModel(t, []float64{-1, 0.25, 0.5, 0.25}, []float64{-1, 0.25, 0.5, 0.25})
+	three := pmfModel(t, []float64{-1, 0.25, 0.5, 0.25}, []float64{0, 0.5, 0.5}, []float64{-1, 0.5, 0, 0.5})
+	four := pmfModel(t, []float64{0, 1}, []float64{-1, 0.5, 0.5}, []float64{-1, 0.5, 0.5}, []float64{0, 0.5, 0.5})
+	cases := []struct {
+		name  string
+		m     *discretize.Model
+		rule  func(l *tables.Layout) tables.Rule
+		widen int
+		ties  bool // whether several configurations reach the worst case
+	}{
+		{"two channels greedy", two, func(*tables.Layout) tables.Rule { return tables.Greedy{} }, 0, true},
+		{"two channels table", two, func(l *tables.Layout) tables.Rule { return dyadicTable(l, rand.New(rand.NewPCG(1, 2)), l.D) }, 0, false},
+		// Offsets of 0, 1, 2, ... half steps allow ties of two channels
+		// only, so shares stay dyadic.
+		{"three channels offset", three, func(*tables.Layout) tables.Rule { return tables.Offset{Half: []int{0, 1, 2}} }, 2, true},
+		{"three channels table", three, func(l *tables.Layout) tables.Rule { return dyadicTable(l, rand.New(rand.NewPCG(3, 4)), l.D) }, 0, false},
+		{"four channels offset", four, func(*tables.Layout) tables.Rule { return tables.Offset{Half: []int{0, 1, 2, 3}} }, 3, true},
+		{"four channels table", four, func(l *tables.Layout) tables.Rule { return dyadicTable(l, rand.New(rand.NewPCG(5, 6)), l.D) }, 0, false},
+	}
+	for _, c := range cases {
+		t.Run(c.name, func(t *testing.T) {
+			l := layout(t, c.m)
+			rule := c.rule(l)
+			d := l.D + c.widen
+			got, err := WorstCase(l, rule, d)
+			if err != nil {
+				t.Fatal(err)
+			}
+			want := l.WorstCase(rule, d)
+			if got.Regret != want.Regret || key(got.Values) != key(want.Values) || got.Subset != want.Subset || got.Configurations != want.Configurations {
+				t.Errorf("fast worst case %.17g at %v (subset %v, %d configurations); direct %.17g at %v (subset %v, %d configurations)",
+					got.Regret, got.Values, got.Subset.Members(), got.Configurations, want.Regret, want.Values, want.Subset.Members(), want.Configurations)
+			}
+			ties := 0
+			for _, q := range tables.Subsets(l.N()) {
+				vs, regs := direct(l, rule, q, d)
+				m := map[string]float64{}
+				if err := Regrets(l, rule, q, d, func(v []int, reg float64) { m[key(v)] = reg }); err != nil {
+					t.Fatal(err)
+				}
+				for i, v := range vs {
+					if m[key(v)] != regs[i] {
+						t.Errorf("configuration %v: fast %.17g, direct %.17g, want equal", v, m[key(v)], regs[i])
+					}
+					if regs[i] == want.Regret {
+						ties++
+					}
+				}
+			}
+			t.Logf("worst case %g at %v, reached by %d configurations", want.Regret, want.Values, ties)
+			if c.ties && ties < 2 {
+				t.Errorf("only %d configuration reaches the worst case: the case does not test tie-breaking", ties)
+			}
+		})
+	}
+}
+
+// TestEarlierIsEnumerationOrder checks the order used to break ties
+// against the order in which tables.Configurations lists configurations.
+func TestEarlierIsEnumerationOrder(t *testing.T) {
+	for _, q := range tables.Subsets(4) {
+		var prev []int
+		mem := q.Members()
+		tables.Configurations(4, q, 3, func(v []int) bool {
+			if prev != nil && (!earlier(prev, v, mem) || earlier(v, prev, mem)) {
+				t.Fatalf("subset %v: %v listed before %v, earlier disagrees", mem, prev, v)
+			}
+			prev = append(prev[:0], v...)
+			return true
+		})
+	}
+}
+
+// collect returns Regrets' reports for every subset, in report order.
+func collect(t *testing.T, e Evaluator, l *tables.Layout, rule tables.Rule, d int) ([]string, []float64) {
+	t.Helper()
+	var keys []string
+	var regs []float64
+	for _, q := range tables.Subsets(l.N()) {
+		err := e.Regrets(l, rule, q, d, func(v []int, reg float64) {
+			keys = append(keys, key(v))
+			regs = append(regs, reg)
+		})
+		if err != nil {
+			t.Fatal(err)
+		}
+	}
+	return keys, regs
+}
+
+// TestTilesAndWorkers checks that a tight memory budget (many tiles) and a
+// single goroutine give the same regrets, bit for bit, as one tile on
+// every core: each sum has a fixed order whatever the split of the work.
+func TestTilesAndWorkers(t *testing.T) {
+	rng := rand.New(rand.NewPCG(11, 12))
+	l := layout(t, randomModel(t, rng, 3, 3, 5))
+	rule := randomTable(l, rng, l.D)
+	q := tables.SetOf(0, 1, 2)
+	s, err := newSubset(l, rule, q, l.D, 1, 1<<16)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if s.tile[0] >= 2*s.span+1 || s.tile[1] >= 2*s.span+1 {
+		t.Fatalf("a 64 KiB budget left tiles %v for a box of side %d: the test does not tile", s.tile, 2*s.span+1)
+	}
+	k0, r0 := collect(t, Evaluator{}, l, rule, l.D)
+	for _, e := range []Evaluator{{Workers: 1}, {MaxBytes: 1 << 16}, {MaxBytes: 1 << 16, Workers: 1}} {
+		k1, r1 := collect(t, e, l, rule, l.D)
+		got := map[string]float64{}
+		for i := range k1 {
+			got[k1[i]] = r1[i]
+		}
+		if len(k1) != len(k0) || len(got) != len(k0) {
+			t.Fatalf("%+v: %d reports (%d distinct), want %d", e, len(k1), len(got), len(k0))
+		}
+		for i, k := range k0 {
+			if got[k] != r0[i] {
+				t.Fatalf("%+v: configuration %s regret %.17g, want %.17g", e, k, got[k], r0[i])
+			}
+		}
+	}
+}
+
+// normalModel discretizes normal channels with the given sigmas at step h
+// with tail mass tail.
+func normalModel(t testing.TB, h, tail float64, sigma ...float64) *discretize.Model {
+	t.Helper()
+	m := &discretize.Model{Step: h, Tail: tail}
+	for i, s := range sigma {
+		p, cut, err := discretize.Normal{Sigma: s}.Lattice(h, tail)
+		if err != nil {
+			t.Fatal(err)
+		}
+		m.Channels = append(m.Channels, discretize.Channel{Name: string(rune('A' + i)), Kind: "normal", PMF: p, Cut: cut})
+	}
+	return m
+}
+
+func solve(t testing.TB, m *discretize.Model) *result.Solution {
+	t.Helper()
+	s, err := result.Solve(context.Background(), m, result.Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	return s
+}
+
+// TestNormalAndSolved compares every configuration's regret with the
+// direct evaluator on a normal model and on the optimal tables that
+// result.Solve ships for small models.
+func TestNormalAndSolved(t *testing.T) {
+	normal := normalModel(t, 1, 1e-4, 0.8, 1, 1.6)
+	small := pmfModel(t, []float64{-1, 1, 2, 1}, []float64{0, 1, 1}, []float64{-1, 1, 0, 3})
+	solvedSmall := solve(t, small)
+	solvedNormal := solve(t, normalModel(t, 0.5, 1e-2, 0.5, 0.5, 1))
+	cases := []struct {
+		name  string
+		l     *tables.Layout
+		rule  tables.Rule
+		widen int
+	}{
+		{"normal greedy", layout(t, normal), tables.Greedy{}, 0},
+		{"normal offset", layout(t, normal), tables.Offset{Half: []int{1, 0, -2}}, 2},
+		{"solved pmf table", solvedSmall.Layout, solvedSmall.Tables, 0},
+		{"solved normal table", solvedNormal.Layout, solvedNormal.Tables, 0},
+	}
+	for _, c := range cases {
+		t.Run(c.name, func(t *testing.T) {
+			a, r := compare(t, Evaluator{}, c.l, c.rule, c.l.D+c.widen)
+			t.Logf("D=%d largest difference %.3g absolute, %.3g relative", c.l.D, a, r)
+		})
+	}
+	// The worst case of the shipped tables is the certified upper bound.
+	for _, s := range []*result.Solution{solvedSmall, solvedNormal} {
+		w, err := WorstCase(s.Layout, s.Tables, s.Layout.D)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if up := result.Float(s.Upper); !close(w.Regret, up) {
+			t.Errorf("worst case of the solved tables %.17g, certified upper bound %.17g", w.Regret, up)
+		}
 	}
 }
