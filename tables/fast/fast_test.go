@@ -1,9 +1,10 @@
 package fast
 
 import (
-	"fmt"
 	"context"
+	"fmt"
 	"math"
+	"math/big"
 	"math/rand/v2"
 	"runtime"
 	"sync"
@@ -11,7 +12,9 @@ import (
 
 	"github.com/pickwise/pickwise/discretize"
 	"github.com/pickwise/pickwise/tables"
+	"github.com/pickwise/pickwise/tables/exact"
 	"github.com/pickwise/pickwise/tables/result"
+	"gonum.org/v1/gonum/stat/distuv"
 )
 
 // pmfModel builds a model at step 1 from pmfs given as {lo, weights...}.
@@ -434,5 +437,203 @@ func TestNormalAndSolved(t *testing.T) {
 		if up := result.Float(s.Upper); !close(w.Regret, up) {
 			t.Errorf("worst case of the solved tables %.17g, certified upper bound %.17g", w.Regret, up)
 		}
+	}
+}
+
+// TestWorkedExample: channel A read exactly, channel B with noise -1 or +1
+// reading units with probability 1/2 each, at step h = 1/k (a standard
+// worked example of the field, derived by hand in the design notes): the
+// optimum is 1/4 in reading units. Greedy's worst case is (1 - h)/2 (design
+// notes), reached just under one unit apart; derived by hand here: B
+// exactly one unit above A reads level with A half the time, and the shared
+// tie costs 1/4, so the worst case is max((1 - h)/2, 1/4), which the notes'
+// formula misses at h = 1. Evaluating greedy on a wider range of
+// configurations than it needs must not change the figure.
+func TestWorkedExample(t *testing.T) {
+	for _, k := range []int{1, 2, 4, 5} {
+		t.Run(fmt.Sprintf("step 1/%d", k), func(t *testing.T) {
+			h := 1 / float64(k)
+			w := make([]float64, 2*k+1)
+			w[0], w[2*k] = 0.5, 0.5
+			pa, _ := discretize.Quantize(0, []float64{1})
+			pb, _ := discretize.Quantize(-k, w)
+			m := &discretize.Model{Step: h, Channels: []discretize.Channel{{Name: "A", Kind: "exact", PMF: pa}, {Name: "B", Kind: "pmf", PMF: pb}}}
+			l := layout(t, m)
+			for _, d := range []int{l.D + result.GreedyWidth(l), 3*l.D + 7} {
+				g, err := WorstCase(l, tables.Greedy{}, d)
+				if err != nil {
+					t.Fatal(err)
+				}
+				if want := max((1-h)/2, 0.25); math.Abs(g.Regret*h-want) > 1e-12 {
+					t.Errorf("d=%d: greedy's worst case %.17g at %v, want %.17g", d, g.Regret*h, g.Values, want)
+				}
+			}
+			s := solve(t, m)
+			o, err := WorstCase(l, s.Tables, l.D)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if math.Abs(o.Regret*h-0.25) > 1e-12 {
+				t.Errorf("optimal table's worst case %.17g at %v, want 1/4", o.Regret*h, o.Values)
+			}
+		})
+	}
+}
+
+// TestGaussianPair: two channels whose noise difference is N(0, 1). The
+// minimax-regret treatment choice literature (Stoye 2009, J.
+// Econometrics; from memory) gives greedy's worst case as
+// max over d > 0 of d Phi(-d), about 0.16997; the design notes require the
+// rounded model at step s/10 to come within 1% of it. The reference is
+// computed here with gonum.
+func TestGaussianPair(t *testing.T) {
+	s := math.Sqrt(0.5)
+	l := layout(t, normalModel(t, 0.1, 1e-6, s, s))
+	g, err := WorstCase(l, tables.Greedy{}, l.D+result.GreedyWidth(l))
+	if err != nil {
+		t.Fatal(err)
+	}
+	ref := 0.0
+	for i := 1; i <= 300000; i++ {
+		d := float64(i) * 1e-5
+		ref = max(ref, d*distuv.UnitNormal.CDF(-d))
+	}
+	got := g.Regret * 0.1
+	t.Logf("greedy's worst case %.6f at %v, continuous reference %.6f", got, g.Values, ref)
+	if math.Abs(got-ref) > 0.01*ref {
+		t.Errorf("greedy's worst case %.6f, reference %.6f: off by more than 1%%", got, ref)
+	}
+}
+
+// TestCandidates checks Candidates against a filter of every reported
+// regret, and its intended use: the exact worst case of a solved table
+// (its certified upper bound, computed by package exact over every
+// configuration) is the largest exact regret among the candidates alone.
+func TestCandidates(t *testing.T) {
+	rng := rand.New(rand.NewPCG(21, 22))
+	l := layout(t, randomModel(t, rng, 3, 2, 4))
+	rule := randomTable(l, rng, l.D)
+	keys, regs := collect(t, Evaluator{}, l, rule, l.D)
+	top := math.Inf(-1)
+	for _, r := range regs {
+		top = max(top, r)
+	}
+	w, err := WorstCase(l, rule, l.D)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, tol := range []float64{0, 1e-9, 0.05, 0.3} {
+		cands, err := Candidates(l, rule, l.D, tol)
+		if err != nil {
+			t.Fatal(err)
+		}
+		want := map[string]bool{}
+		for i, k := range keys {
+			if regs[i] >= top-tol {
+				want[k] = true
+			}
+		}
+		if len(cands) != len(want) {
+			t.Errorf("tol %g: %d candidates, want %d", tol, len(cands), len(want))
+		}
+		for i, v := range cands {
+			if !want[key(v)] {
+				t.Errorf("tol %g: %v is not within tol of the worst case", tol, v)
+			}
+			if i > 0 {
+				qa, qb := subsetOf(cands[i-1]), subsetOf(v)
+				if rank(qa) > rank(qb) || qa == qb && !earlier(cands[i-1], v, qa.Members()) {
+					t.Errorf("tol %g: candidates %v and %v out of enumeration order", tol, cands[i-1], v)
+				}
+			}
+		}
+		if len(cands) == 0 || key(cands[0]) != key(w.Values) {
+			t.Errorf("tol %g: first candidate is not the worst case %v", tol, w.Values)
+		}
+	}
+
+	s := solve(t, pmfModel(t, []float64{-1, 1, 2, 1}, []float64{0, 1, 1}, []float64{-1, 1, 0, 3}))
+	et, err := exact.NewTable(s.Tables, s.ProbBits)
+	if err != nil {
+		t.Fatal(err)
+	}
+	cands, err := Candidates(s.Layout, s.Tables, s.Layout.D, 1e-9)
+	if err != nil {
+		t.Fatal(err)
+	}
+	best := new(big.Rat)
+	for _, v := range cands {
+		if r := exact.Regret(s.Layout, et, v); r.Cmp(best) > 0 {
+			best = r
+		}
+	}
+	if best.Cmp(s.Upper) != 0 {
+		t.Errorf("largest exact regret over %d candidates %s, certified worst case %s", len(cands), best.RatString(), s.Upper.RatString())
+	}
+}
+
+func subsetOf(v []int) tables.Set {
+	var q tables.Set
+	for i, x := range v {
+		if x > tables.Far/2 {
+			q |= 1 << uint(i)
+		}
+	}
+	return q
+}
+
+// rank returns the position of q in tables.Subsets order.
+func rank(q tables.Set) int {
+	for i, s := range tables.Subsets(16) {
+		if s == q {
+			return i
+		}
+	}
+	return -1
+}
+
+// farRule gives probability to a channel that reads tables.Far.
+type farRule struct{}
+
+func (farRule) Probs(r []int, p []float64) {
+	for i := range p {
+		p[i] = 0
+		if r[i] == tables.Far {
+			p[i] = 1
+			return
+		}
+	}
+	p[0] = 1
+}
+
+// TestErrors checks that bad arguments and impossible budgets are
+// reported as errors.
+func TestErrors(t *testing.T) {
+	l := layout(t, pmfModel(t, []float64{-1, 1, 1, 1}, []float64{0, 1, 1}, []float64{-1, 1, 0, 3}))
+	cases := []struct {
+		name string
+		run  func() error
+	}{
+		{"nil layout", func() error { _, err := WorstCase(nil, tables.Greedy{}, 3); return err }},
+		{"nil rule", func() error { _, err := WorstCase(l, nil, 3); return err }},
+		{"negative gap", func() error { _, err := WorstCase(l, tables.Greedy{}, -1); return err }},
+		{"huge gap", func() error { _, err := WorstCase(l, tables.Greedy{}, 1<<40); return err }},
+		{"one channel", func() error { return Regrets(l, tables.Greedy{}, tables.SetOf(1), 3, func([]int, float64) {}) }},
+		{"channel out of range", func() error { return Regrets(l, tables.Greedy{}, tables.SetOf(0, 3), 3, func([]int, float64) {}) }},
+		{"tiny budget", func() error { _, err := Evaluator{MaxBytes: 100}.WorstCase(l, tables.Greedy{}, 3); return err }},
+		{"negative tolerance", func() error { _, err := Candidates(l, tables.Greedy{}, 3, -1); return err }},
+		{"NaN tolerance", func() error { _, err := Candidates(l, tables.Greedy{}, 3, math.NaN()); return err }},
+		{"rule picks a far channel", func() error {
+			return Regrets(l, farRule{}, tables.SetOf(1, 2), 3, func([]int, float64) {})
+		}},
+	}
+	for _, c := range cases {
+		t.Run(c.name, func(t *testing.T) {
+			err := c.run()
+			if err == nil {
+				t.Fatal("no error")
+			}
+			t.Log(err)
+		})
 	}
 }
