@@ -2,6 +2,7 @@ package fast
 
 import (
 	"fmt"
+	"math"
 	"sync"
 	"sync/atomic"
 
@@ -110,8 +111,10 @@ func (s *subset) bytes() float64 {
 		xs *= float64(s.xext(s.tile, a))
 		rs *= float64(t)
 	}
-	per := float64(len(s.l.Lo))*16 + float64(s.k)*8 + chunk*8
-	return 8*(float64(s.k+1)*xs+rs) + float64(s.workers)*per
+	// Spans: k+2 stages of at most xs / (last extent) rows, 8 bytes each.
+	spans := float64(s.k+2) * 8 * xs / float64(s.xext(s.tile, s.k-1))
+	per := float64(len(s.l.Lo))*16 + float64(s.k)*16 + chunk*8
+	return 8*(float64(s.k+1)*xs+rs) + spans + float64(s.workers)*per
 }
 
 // run evaluates every tile and reports the configurations in it.
@@ -143,10 +146,11 @@ func (s *subset) run(fn func(v []int, regret float64)) error {
 			ulo[a] = -s.span + t[a]*s.tile[a]
 			ext[a] = min(s.tile[a], s.span-ulo[a]+1)
 		}
-		if err := s.regrets(ulo, ext); err != nil {
+		cfg, err := s.regrets(ulo, ext)
+		if err != nil {
 			return err
 		}
-		s.report(ulo, ext, v, fn)
+		s.report(ulo, ext, cfg, v, fn)
 		if !next(t, ntiles) {
 			return nil
 		}
@@ -229,71 +233,272 @@ func parallel(workers, units int, fn func(w, lo, hi int)) {
 	wg.Wait()
 }
 
-// regrets fills s.r with the regret at every value difference vector of
-// the tile with lowest corner ulo and extents ext.
-func (s *subset) regrets(ulo, ext []int) error {
+// spans holds, for every row of a stage of the computation (every index
+// of the axes before the last, row-major), the interval [lo, hi] of
+// indices along the last axis whose values are needed; lo > hi for a row
+// that needs none. Values outside the spans are never computed and never
+// read by a needed value.
+type spans struct {
+	ext    []int // extents of the axes before the last
+	lo, hi []int32
+}
+
+func newSpans(ext []int) *spans {
+	n := prod(ext)
+	return &spans{ext: append([]int(nil), ext...), lo: make([]int32, n), hi: make([]int32, n)}
+}
+
+// stageExt returns the extents of the array after st axis passes over a
+// tile of extents ext: st = 0 is the box of reading differences, st = k
+// the box of Y, before the diagonal pass.
+func (s *subset) stageExt(ext []int, st int) []int {
+	e := make([]int, s.k)
+	for a := range e {
+		e[a] = ext[a] + s.w[0]
+		if a >= st {
+			e[a] += s.w[a+1]
+		}
+	}
+	return e
+}
+
+// regrets fills s.r with the regret at every configuration of the tile
+// with lowest corner ulo and extents ext (other entries of s.r are
+// unspecified) and returns the spans of the configurations.
+func (s *subset) regrets(ulo, ext []int) (*spans, error) {
 	k := s.k
-	xext := make([]int, k)
+	xext := s.stageExt(ext, 0)
 	xlo := make([]int, k)
 	hi0 := s.lo[0] + s.w[0]
-	for a := range xext {
-		xext[a] = s.xext(ext, a)
+	for a := range xlo {
 		// D = u + a_c - a_0 with a_c >= lo_c and a_0 <= hi_0.
 		xlo[a] = ulo[a] + s.lo[a+1] - hi0
 	}
 	size := prod(xext)
 	xst := strides(xext)
-	s.evalRule(xlo, xext)
+
+	// Work backwards from the configurations to the values each stage
+	// needs.
+	need := make([]*spans, k+2)
+	need[k+1] = s.validSpans(ulo, ext)
+	need[k] = s.diagDilate(need[k+1])
+	for ax := k - 1; ax >= 0; ax-- {
+		need[ax] = s.axisDilate(need[ax+1], ax)
+	}
+
+	// Values outside the spans keep whatever an earlier channel or tile
+	// left there: no needed value reads them.
+	nonzero := s.evalRule(xlo, xext, need[0])
 	if s.fault.Load() {
-		return fmt.Errorf("fast: the rule gives probability to a channel outside subset %v", s.mem)
+		return nil, fmt.Errorf("fast: the rule gives probability to a channel outside subset %v", s.mem)
 	}
 	rs := s.r[:prod(ext)]
 	clear(rs)
-	cur := make([]int, k)
 	for i := range s.mem {
-		a := s.x[i][:size]
-		if allZero(a) {
+		if !nonzero[i] {
 			continue
 		}
-		copy(cur, xext)
+		a := s.x[i][:size]
 		for ax := 0; ax < k; ax++ {
-			s.axisPass(a, xst, cur, ax)
+			s.axisPass(a, xst, ax, need[ax+1], s.stageExt(ext, ax+1))
 		}
-		s.diagPass(a, xst, ulo, ext, i, rs)
+		s.diagPass(a, xst, ulo, ext, i, rs, need[k+1])
 	}
-	return nil
+	return need[k+1], nil
 }
 
-func allZero(a []float64) bool {
-	for _, x := range a {
-		if x != 0 {
+// valid reports whether the values (0, u...) have sorted consecutive gaps
+// of at most d: whether u are the value differences of a configuration.
+func (s *subset) valid(u []int) bool {
+	var v [16]int
+	m := len(u) + 1
+	copy(v[1:], u)
+	sortSmall(v[:m])
+	for a := 1; a < m; a++ {
+		if v[a]-v[a-1] > s.d {
 			return false
 		}
 	}
 	return true
 }
 
-// evalRule fills s.x[i] with the probability that the rule picks member i
-// at reading differences xlo + j over the box of extents xext.
-func (s *subset) evalRule(xlo, xext []int) {
+// validSpans returns, for every row of the tile, the hull of the
+// configurations along the last axis.
+func (s *subset) validSpans(ulo, ext []int) *spans {
+	k := s.k
+	out := newSpans(ext[:k-1])
+	rst := strides(out.ext)
+	last := ext[k-1]
+	parallel(s.workers, len(out.lo), func(wk, lo, hi int) {
+		sc := &s.scratch[wk]
+		u := make([]int, k)
+		for row := lo; row < hi; row++ {
+			decode(row, out.ext, rst, sc.idx)
+			for a := 0; a < k-1; a++ {
+				u[a] = ulo[a] + sc.idx[a]
+			}
+			first, end := 0, last-1
+			for ; first < last; first++ {
+				u[k-1] = ulo[k-1] + first
+				if s.valid(u) {
+					break
+				}
+			}
+			for ; end > first; end-- {
+				u[k-1] = ulo[k-1] + end
+				if s.valid(u) {
+					break
+				}
+			}
+			out.lo[row], out.hi[row] = int32(first), int32(end)
+			if first == last {
+				out.lo[row], out.hi[row] = 1, 0
+			}
+		}
+	})
+	return out
+}
+
+// diagDilate returns the spans of Y that the diagonal pass needs to
+// produce the spans out: P at i reads Y at i + t(1, ..., 1), t in
+// [0, w_0].
+func (s *subset) diagDilate(out *spans) *spans {
+	w0 := s.w[0]
+	ext := append([]int(nil), out.ext...)
+	for a := range ext {
+		ext[a] += w0
+	}
+	in := newSpans(ext)
+	n := len(in.ext)
+	ist, ost := strides(in.ext), strides(out.ext)
+	diag := 0
+	for _, x := range ost {
+		diag += x
+	}
+	parallel(s.workers, len(in.lo), func(wk, lo, hi int) {
+		sc := &s.scratch[wk]
+		for row := lo; row < hi; row++ {
+			decode(row, in.ext, ist, sc.idx)
+			// orow is the row's index in out's layout (when in range).
+			orow := 0
+			least := math.MaxInt
+			for a := 0; a < n; a++ {
+				orow += sc.idx[a] * ost[a]
+				least = min(least, sc.idx[a])
+			}
+			rlo, rhi := int32(math.MaxInt32), int32(math.MinInt32)
+			for t := 0; t <= w0; t++ {
+				if t > least {
+					break
+				}
+				inRange := true
+				for a := 0; a < n; a++ {
+					if sc.idx[a]-t >= out.ext[a] {
+						inRange = false
+						break
+					}
+				}
+				if inRange {
+					r := orow - t*diag
+					if out.lo[r] <= out.hi[r] {
+						rlo = min(rlo, out.lo[r]+int32(t))
+						rhi = max(rhi, out.hi[r]+int32(t))
+					}
+				}
+			}
+			if rlo > rhi {
+				rlo, rhi = 1, 0
+			}
+			in.lo[row], in.hi[row] = rlo, rhi
+		}
+	})
+	return in
+}
+
+// axisDilate returns the spans that the pass along axis ax needs to
+// produce the spans out: the output at j reads the input at j + t along
+// ax, t in [0, w].
+func (s *subset) axisDilate(out *spans, ax int) *spans {
+	w := s.w[ax+1]
+	k := s.k
+	in := newSpans(out.ext)
+	if ax == k-1 {
+		for r := range out.lo {
+			in.lo[r], in.hi[r] = out.lo[r], out.hi[r]
+			if out.lo[r] <= out.hi[r] {
+				in.hi[r] += int32(w)
+			}
+		}
+		return in
+	}
+	ext := append([]int(nil), out.ext...)
+	ext[ax] += w
+	in = newSpans(ext)
+	ist, ost := strides(in.ext), strides(out.ext)
+	parallel(s.workers, len(in.lo), func(wk, lo, hi int) {
+		sc := &s.scratch[wk]
+		for row := lo; row < hi; row++ {
+			decode(row, in.ext, ist, sc.idx)
+			base := 0
+			for a := range in.ext {
+				if a != ax {
+					base += sc.idx[a] * ost[a]
+				}
+			}
+			rlo, rhi := int32(math.MaxInt32), int32(math.MinInt32)
+			for t := 0; t <= w; t++ {
+				j := sc.idx[ax] - t
+				if j < 0 {
+					break
+				}
+				if j >= out.ext[ax] {
+					continue
+				}
+				r := base + j*ost[ax]
+				if out.lo[r] <= out.hi[r] {
+					rlo = min(rlo, out.lo[r])
+					rhi = max(rhi, out.hi[r])
+				}
+			}
+			if rlo > rhi {
+				rlo, rhi = 1, 0
+			}
+			in.lo[row], in.hi[row] = rlo, rhi
+		}
+	})
+	return in
+}
+
+// evalRule sets s.x[i], over the spans need of the box of reading
+// differences with lowest corner xlo and extents xext, to the probability
+// that the rule picks member i, and reports for each member whether any of
+// these probabilities is not zero.
+func (s *subset) evalRule(xlo, xext []int, need *spans) []bool {
 	k := s.k
 	last := xext[k-1]
-	outer := xext[:k-1]
-	ost := strides(outer)
-	parallel(s.workers, prod(outer), func(w, lo, hi int) {
+	rst := strides(need.ext)
+	nonzero := make([][]bool, s.workers)
+	for w := range nonzero {
+		nonzero[w] = make([]bool, k+1)
+	}
+	parallel(s.workers, len(need.lo), func(w, lo, hi int) {
 		sc := &s.scratch[w]
 		r, p := sc.r, sc.p
+		nz := nonzero[w]
 		for row := lo; row < hi; row++ {
-			decode(row, outer, ost, sc.idx)
+			decode(row, need.ext, rst, sc.idx)
 			for a := 0; a < k-1; a++ {
 				r[s.mem[a+1]] = xlo[a] + sc.idx[a]
 			}
 			base := row * last
-			for j := 0; j < last; j++ {
+			for j := int(need.lo[row]); j <= int(need.hi[row]); j++ {
 				r[s.mem[k]] = xlo[k-1] + j
 				s.rule.Probs(r, p)
 				for i, c := range s.mem {
 					s.x[i][base+j] = p[c]
+					if p[c] != 0 {
+						nz[i] = true
+					}
 				}
 				for c, pc := range p {
 					if pc != 0 && r[c] == tables.Far {
@@ -303,99 +508,152 @@ func (s *subset) evalRule(xlo, xext []int) {
 			}
 		}
 	})
-}
-
-// axisPass replaces a, over the current extents cur, by its correlation
-// along axis ax with the noise pmf of member ax+1:
-// out[.., j, ..] = sum_t p[t] in[.., j+t, ..], t in increasing order. The
-// extent along ax shrinks by the member's spread; the result stays at the
-// low indices, in place.
-func (s *subset) axisPass(a []float64, st, cur []int, ax int) {
-	k := s.k
-	pa := s.p[ax+1]
-	w := s.w[ax+1]
-	newLen := cur[ax] - w
-	if ax == k-1 {
-		outer := cur[:k-1]
-		ost := st[:k-1]
-		parallel(s.workers, prod(outer), func(wk, lo, hi int) {
-			sc := &s.scratch[wk]
-			for row := lo; row < hi; row++ {
-				base := decode(row, outer, ost, sc.idx)
-				line := a[base : base+cur[ax]]
-				for j := 0; j < newLen; j++ {
-					var acc float64
-					for t, pt := range pa {
-						acc += pt * line[j+t]
-					}
-					line[j] = acc
-				}
-			}
-		})
-		cur[ax] = newLen
-		return
-	}
-	// Lines along ax for every index of the other axes but the last,
-	// and chunks of the last axis.
-	var oext, ost []int
-	for b := 0; b < k-1; b++ {
-		if b != ax {
-			oext = append(oext, cur[b])
-			ost = append(ost, st[b])
+	for w := 1; w < s.workers; w++ {
+		for i, b := range nonzero[w] {
+			nonzero[0][i] = nonzero[0][i] || b
 		}
 	}
-	lastLen := cur[k-1]
+	return nonzero[0]
+}
+
+// axisPass replaces a by its correlation along axis ax with the noise
+// pmf of member ax+1, over the spans out of the output (whose extents are
+// outExt): out[.., j, ..] = sum_t p[t] in[.., j+t, ..], with t in
+// increasing order. The result stays at the low indices, in place.
+func (s *subset) axisPass(a []float64, st []int, ax int, out *spans, outExt []int) {
+	k := s.k
+	pa := s.p[ax+1]
+	if ax == k-1 {
+		parallel(s.workers, len(out.lo), func(wk, lo, hi int) {
+			sc := &s.scratch[wk]
+			for row := lo; row < hi; row++ {
+				base := decode(row, out.ext, st[:k-1], sc.idx)
+				correlate(a[base:], pa, int(out.lo[row]), int(out.hi[row]))
+			}
+		})
+		return
+	}
+	// Lines along ax for every index of the other axes but the last, and
+	// chunks of the last axis.
+	var oext, ost, orst []int
+	rst := strides(out.ext)
+	for b := 0; b < k-1; b++ {
+		if b != ax {
+			oext = append(oext, out.ext[b])
+			ost = append(ost, st[b])
+			orst = append(orst, rst[b])
+		}
+	}
+	lastLen := outExt[k-1]
 	nchunk := (lastLen + chunk - 1) / chunk
-	sa := st[ax]
+	sa, ra := st[ax], rst[ax]
 	parallel(s.workers, prod(oext)*nchunk, func(wk, lo, hi int) {
 		sc := &s.scratch[wk]
 		for u := lo; u < hi; u++ {
 			base := decode(u/nchunk, oext, ost, sc.idx[:len(oext)])
+			rbase := 0
+			for b := range oext {
+				rbase += sc.idx[b] * orst[b]
+			}
 			e0 := (u % nchunk) * chunk
-			n := min(chunk, lastLen-e0)
-			base += e0
-			tmp := sc.tmp[:n]
-			for j := 0; j < newLen; j++ {
-				src := a[base+j*sa:][:n]
-				p0 := pa[0]
-				for e := range tmp {
-					tmp[e] = p0 * src[e]
+			e1 := min(e0+chunk, lastLen)
+			for j := 0; j < outExt[ax]; j++ {
+				r := rbase + j*ra
+				a0, a1 := max(int(out.lo[r]), e0), min(int(out.hi[r])+1, e1)
+				if a0 >= a1 {
+					continue
 				}
-				for t := 1; t <= w; t++ {
-					src := a[base+(j+t)*sa:][:n]
-					pt := pa[t]
-					for e := range tmp {
-						tmp[e] += pt * src[e]
-					}
-				}
-				copy(a[base+j*sa:][:n], tmp)
+				tmp := sc.tmp[:a1-a0]
+				rows(tmp, a[base+j*sa+a0:], sa, pa)
+				copy(a[base+j*sa+a0:], tmp)
 			}
 		}
 	})
-	cur[ax] = newLen
 }
 
-// diagPass adds to rs, at every value difference vector u of the tile,
-// (max u - u_i) P_i(u), where P_i(u) = sum_t p_0[t] Y_i(u - (lo_0+t)·1)
+// correlate sets line[j] = sum_t p[t] line[j+t] (t increasing) for j in
+// [lo, hi], in increasing order of j, four outputs at a time.
+func correlate(line []float64, p []float64, lo, hi int) {
+	j := lo
+	for ; j+3 <= hi; j += 4 {
+		var a0, a1, a2, a3 float64
+		x := line[j : j+len(p)+3]
+		for t, pt := range p {
+			y := x[t : t+4]
+			a0 += pt * y[0]
+			a1 += pt * y[1]
+			a2 += pt * y[2]
+			a3 += pt * y[3]
+		}
+		line[j], line[j+1], line[j+2], line[j+3] = a0, a1, a2, a3
+	}
+	for ; j <= hi; j++ {
+		var acc float64
+		for t, pt := range p {
+			acc += pt * line[j+t]
+		}
+		line[j] = acc
+	}
+}
+
+// rows sets tmp[e] = sum_t p[t] src[t*stride+e] (t increasing), taking
+// four terms of p at a time.
+func rows(tmp, src []float64, stride int, p []float64) {
+	n := len(tmp)
+	s0 := src[:n]
+	p0 := p[0]
+	for e := range tmp {
+		tmp[e] = p0 * s0[e]
+	}
+	t := 1
+	for ; t+3 < len(p); t += 4 {
+		s1 := src[t*stride:][:n]
+		s2 := src[(t+1)*stride:][:n]
+		s3 := src[(t+2)*stride:][:n]
+		s4 := src[(t+3)*stride:][:n]
+		p1, p2, p3, p4 := p[t], p[t+1], p[t+2], p[t+3]
+		for e := range tmp {
+			tmp[e] = tmp[e] + p1*s1[e] + p2*s2[e] + p3*s3[e] + p4*s4[e]
+		}
+	}
+	for ; t < len(p); t++ {
+		s1 := src[t*stride:][:n]
+		p1 := p[t]
+		for e := range tmp {
+			tmp[e] += p1 * s1[e]
+		}
+	}
+}
+
+// diagPass adds to rs, at every configuration u of the tile (the spans
+// out), (max u - u_i) P_i(u), where P_i(u) = sum_t p_0[t] Y_i(u - (lo_0+t)·1)
 // and a holds Y_i with its lowest corner at u_lo - hi_0·1: the pass along
 // the diagonal for the noise of member 0.
-func (s *subset) diagPass(a []float64, st, ulo, ext []int, i int, rs []float64) {
+func (s *subset) diagPass(a []float64, st, ulo, ext []int, i int, rs []float64, out *spans) {
 	k := s.k
-	p0 := s.p[0]
 	w0 := s.w[0]
+	// Reversed so that t runs over the offsets of a in increasing order:
+	// P(u) = sum_t q[t] a[u + t·1] with q[t] = p_0[w_0 - t].
+	q := make([]float64, w0+1)
+	for t := range q {
+		q[t] = s.p[0][w0-t]
+	}
 	dsum := 0
 	for _, x := range st {
 		dsum += x
 	}
-	outer := ext[:k-1]
-	ost := st[:k-1]
 	lastLen := ext[k-1]
 	nchunk := (lastLen + chunk - 1) / chunk
-	parallel(s.workers, prod(outer)*nchunk, func(wk, lo, hi int) {
+	parallel(s.workers, len(out.lo)*nchunk, func(wk, lo, hi int) {
 		sc := &s.scratch[wk]
 		for u := lo; u < hi; u++ {
 			row := u / nchunk
-			baseA := decode(row, outer, ost, sc.idx[:k-1])
+			e0 := (u % nchunk) * chunk
+			a0, a1 := max(int(out.lo[row]), e0), min(int(out.hi[row])+1, e0+chunk, lastLen)
+			if a0 >= a1 {
+				continue
+			}
+			baseA := decode(row, out.ext, st[:k-1], sc.idx[:k-1])
 			baseR := row * lastLen
 			// The weight max u - u_i: the part from the axes before the
 			// last is fixed along the row.
@@ -407,12 +665,10 @@ func (s *subset) diagPass(a []float64, st, ulo, ext []int, i int, rs []float64) 
 					ui = ub
 				}
 			}
-			e0 := (u % nchunk) * chunk
-			n := min(chunk, lastLen-e0)
 			// Skip runs where member i is the top at every u.
 			need := false
-			for e := 0; e < n; e++ {
-				ul := ulo[k-1] + e0 + e
+			for e := a0; e < a1; e++ {
+				ul := ulo[k-1] + e
 				if i == k {
 					ui = ul
 				}
@@ -424,66 +680,48 @@ func (s *subset) diagPass(a []float64, st, ulo, ext []int, i int, rs []float64) 
 			if !need {
 				continue
 			}
-			tmp := sc.tmp[:n]
-			for t, pt := range p0 {
-				src := a[baseA+(w0-t)*dsum+e0:][:n]
-				if t == 0 {
-					for e := range tmp {
-						tmp[e] = pt * src[e]
-					}
-					continue
-				}
-				for e := range tmp {
-					tmp[e] += pt * src[e]
-				}
-			}
-			out := rs[baseR+e0:][:n]
+			tmp := sc.tmp[:a1-a0]
+			rows(tmp, a[baseA+a0:], dsum, q)
+			dst := rs[baseR+a0:][:a1-a0]
 			for e := range tmp {
-				ul := ulo[k-1] + e0 + e
+				ul := ulo[k-1] + a0 + e
 				if i == k {
 					ui = ul
 				}
 				if wt := max(mo, ul) - ui; wt != 0 {
-					out[e] += float64(wt) * tmp[e]
+					dst[e] += float64(wt) * tmp[e]
 				}
 			}
 		}
 	})
 }
 
-// report calls fn for every configuration in the tile: every u whose
-// values (0, u_1, ..., u_k) have sorted consecutive gaps of at most d.
-func (s *subset) report(ulo, ext []int, v []int, fn func(v []int, regret float64)) {
+// report calls fn for every configuration in the tile.
+func (s *subset) report(ulo, ext []int, cfg *spans, v []int, fn func(v []int, regret float64)) {
 	k := s.k
 	idx := make([]int, k)
-	var sorted [16]int
-	flat := 0
-	for {
-		lowest := 0
-		sorted[0] = 0
-		for a := 0; a < k; a++ {
-			ua := ulo[a] + idx[a]
-			sorted[a+1] = ua
-			lowest = min(lowest, ua)
+	u := make([]int, k)
+	rst := strides(cfg.ext)
+	last := ext[k-1]
+	for row := range cfg.lo {
+		decode(row, cfg.ext, rst, idx)
+		for a := 0; a < k-1; a++ {
+			u[a] = ulo[a] + idx[a]
 		}
-		sortSmall(sorted[:k+1])
-		ok := true
-		for a := 0; a < k; a++ {
-			if sorted[a+1]-sorted[a] > s.d {
-				ok = false
-				break
+		for j := int(cfg.lo[row]); j <= int(cfg.hi[row]); j++ {
+			u[k-1] = ulo[k-1] + j
+			if !s.valid(u) {
+				continue
 			}
-		}
-		if ok {
+			lowest := 0
+			for _, x := range u {
+				lowest = min(lowest, x)
+			}
 			v[s.mem[0]] = -lowest
 			for a := 0; a < k; a++ {
-				v[s.mem[a+1]] = ulo[a] + idx[a] - lowest
+				v[s.mem[a+1]] = u[a] - lowest
 			}
-			fn(v, s.r[flat])
-		}
-		flat++
-		if !next(idx, ext) {
-			return
+			fn(v, s.r[row*last+j])
 		}
 	}
 }
