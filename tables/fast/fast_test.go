@@ -637,3 +637,60 @@ func TestErrors(t *testing.T) {
 		})
 	}
 }
+
+// TestLargeNormal spot-checks the regrets of a model far beyond the direct
+// evaluator's reach for every configuration: three normal channels
+// (sigma 0.8, 1.0 and 1.6 at step 0.1, tail 1e-6; pmfs of 79 to 157
+// points). The worst configuration and a seeded sample of others are
+// evaluated directly, and those with a positive regret exactly.
+func TestLargeNormal(t *testing.T) {
+	if testing.Short() {
+		t.Skip("large model")
+	}
+	l := layout(t, normalModel(t, 0.1, 1e-6, 0.8, 1.0, 1.6))
+	q := tables.SetOf(0, 1, 2)
+	rng := rand.New(rand.NewPCG(31, 32))
+	var sample [][]int
+	var regs []float64
+	var worst []int
+	top := math.Inf(-1)
+	n := 0
+	err := Regrets(l, tables.Greedy{}, q, l.D, func(v []int, reg float64) {
+		n++
+		if reg > top {
+			top, worst = reg, append(worst[:0], v...)
+		}
+		if rng.IntN(100000) == 0 {
+			sample = append(sample, append([]int(nil), v...))
+			regs = append(regs, reg)
+		}
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	sample = append(sample, worst)
+	regs = append(regs, top)
+	var absErr, relErr float64
+	for i, v := range sample {
+		g := l.Regret(tables.Greedy{}, v)
+		absErr = max(absErr, math.Abs(regs[i]-g))
+		if g > 0 {
+			relErr = max(relErr, math.Abs(regs[i]-g)/g)
+		}
+		if !close(regs[i], g) {
+			t.Errorf("configuration %v: fast regret %.17g, direct %.17g", v, regs[i], g)
+		}
+		if g == 0 {
+			continue
+		}
+		// Exact rational arithmetic (package exact) as the reference:
+		// the fast sums are short, so they should be far closer to it
+		// than the 1e-12 asked of them.
+		x, _ := exact.Regret(l, exact.Greedy(3), v).Float64()
+		t.Logf("%v: fast %.17g, direct %.17g, exact %.17g: errors %.2g and %.2g", v, regs[i], g, x, regs[i]-x, g-x)
+		if math.Abs(regs[i]-x) > 1e-14*max(1, x) {
+			t.Errorf("configuration %v: fast regret %.17g, exact %.17g", v, regs[i], x)
+		}
+	}
+	t.Logf("%d configurations; worst %.12g at %v; %d checked directly, largest difference %.3g absolute, %.3g relative", n, top, worst, len(sample), absErr, relErr)
+}
