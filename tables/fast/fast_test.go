@@ -228,6 +228,20 @@ func TestAgreesWithDirect(t *testing.T) {
 	}
 }
 
+// TestSmallGapBounds compares with the direct evaluator for gap bounds
+// below and above the layout's D, down to 0 (every value equal).
+func TestSmallGapBounds(t *testing.T) {
+	rng := rand.New(rand.NewPCG(41, 42))
+	l := layout(t, randomModel(t, rng, 3, 2, 4))
+	rule := randomTable(l, rng, l.D)
+	for _, d := range []int{0, 1, 2, 5, l.D + 3} {
+		t.Run(fmt.Sprint("d=", d), func(t *testing.T) {
+			compare(t, Evaluator{}, l, rule, d)
+			compare(t, Evaluator{}, l, tables.Greedy{}, d)
+		})
+	}
+}
+
 // dyadicTable is randomTable with probabilities that are multiples of 1/8,
 // so that every regret is a short dyadic rational computed without
 // round-off by both evaluators.

@@ -111,8 +111,8 @@ func (s *subset) bytes() float64 {
 		xs *= float64(s.xext(s.tile, a))
 		rs *= float64(t)
 	}
-	// Spans: k+2 stages of at most xs / (last extent) rows, 8 bytes each.
-	spans := float64(s.k+2) * 8 * xs / float64(s.xext(s.tile, s.k-1))
+	// Spans: k+2 stages of at most xs / (last extent) rows, 16 bytes each.
+	spans := float64(s.k+2) * 16 * xs / float64(s.xext(s.tile, s.k-1))
 	per := float64(len(s.l.Lo))*16 + float64(s.k)*16 + chunk*8
 	return 8*(float64(s.k+1)*xs+rs) + spans + float64(s.workers)*per
 }
@@ -240,12 +240,12 @@ func parallel(workers, units int, fn func(w, lo, hi int)) {
 // read by a needed value.
 type spans struct {
 	ext    []int // extents of the axes before the last
-	lo, hi []int32
+	lo, hi []int
 }
 
 func newSpans(ext []int) *spans {
 	n := prod(ext)
-	return &spans{ext: append([]int(nil), ext...), lo: make([]int32, n), hi: make([]int32, n)}
+	return &spans{ext: append([]int(nil), ext...), lo: make([]int, n), hi: make([]int, n)}
 }
 
 // stageExt returns the extents of the array after st axis passes over a
@@ -350,7 +350,7 @@ func (s *subset) validSpans(ulo, ext []int) *spans {
 					break
 				}
 			}
-			out.lo[row], out.hi[row] = int32(first), int32(end)
+			out.lo[row], out.hi[row] = first, end
 			if first == last {
 				out.lo[row], out.hi[row] = 1, 0
 			}
@@ -386,7 +386,7 @@ func (s *subset) diagDilate(out *spans) *spans {
 				orow += sc.idx[a] * ost[a]
 				least = min(least, sc.idx[a])
 			}
-			rlo, rhi := int32(math.MaxInt32), int32(math.MinInt32)
+			rlo, rhi := math.MaxInt, math.MinInt
 			for t := 0; t <= w0; t++ {
 				if t > least {
 					break
@@ -401,8 +401,8 @@ func (s *subset) diagDilate(out *spans) *spans {
 				if inRange {
 					r := orow - t*diag
 					if out.lo[r] <= out.hi[r] {
-						rlo = min(rlo, out.lo[r]+int32(t))
-						rhi = max(rhi, out.hi[r]+int32(t))
+						rlo = min(rlo, out.lo[r]+t)
+						rhi = max(rhi, out.hi[r]+t)
 					}
 				}
 			}
@@ -426,7 +426,7 @@ func (s *subset) axisDilate(out *spans, ax int) *spans {
 		for r := range out.lo {
 			in.lo[r], in.hi[r] = out.lo[r], out.hi[r]
 			if out.lo[r] <= out.hi[r] {
-				in.hi[r] += int32(w)
+				in.hi[r] += w
 			}
 		}
 		return in
@@ -445,7 +445,7 @@ func (s *subset) axisDilate(out *spans, ax int) *spans {
 					base += sc.idx[a] * ost[a]
 				}
 			}
-			rlo, rhi := int32(math.MaxInt32), int32(math.MinInt32)
+			rlo, rhi := math.MaxInt, math.MinInt
 			for t := 0; t <= w; t++ {
 				j := sc.idx[ax] - t
 				if j < 0 {
@@ -491,7 +491,7 @@ func (s *subset) evalRule(xlo, xext []int, need *spans) []bool {
 				r[s.mem[a+1]] = xlo[a] + sc.idx[a]
 			}
 			base := row * last
-			for j := int(need.lo[row]); j <= int(need.hi[row]); j++ {
+			for j := need.lo[row]; j <= need.hi[row]; j++ {
 				r[s.mem[k]] = xlo[k-1] + j
 				s.rule.Probs(r, p)
 				for i, c := range s.mem {
@@ -528,7 +528,7 @@ func (s *subset) axisPass(a []float64, st []int, ax int, out *spans, outExt []in
 			sc := &s.scratch[wk]
 			for row := lo; row < hi; row++ {
 				base := decode(row, out.ext, st[:k-1], sc.idx)
-				correlate(a[base:], pa, int(out.lo[row]), int(out.hi[row]))
+				correlate(a[base:], pa, out.lo[row], out.hi[row])
 			}
 		})
 		return
@@ -559,7 +559,7 @@ func (s *subset) axisPass(a []float64, st []int, ax int, out *spans, outExt []in
 			e1 := min(e0+chunk, lastLen)
 			for j := 0; j < outExt[ax]; j++ {
 				r := rbase + j*ra
-				a0, a1 := max(int(out.lo[r]), e0), min(int(out.hi[r])+1, e1)
+				a0, a1 := max(out.lo[r], e0), min(out.hi[r]+1, e1)
 				if a0 >= a1 {
 					continue
 				}
@@ -649,7 +649,7 @@ func (s *subset) diagPass(a []float64, st, ulo, ext []int, i int, rs []float64, 
 		for u := lo; u < hi; u++ {
 			row := u / nchunk
 			e0 := (u % nchunk) * chunk
-			a0, a1 := max(int(out.lo[row]), e0), min(int(out.hi[row])+1, e0+chunk, lastLen)
+			a0, a1 := max(out.lo[row], e0), min(out.hi[row]+1, e0+chunk, lastLen)
 			if a0 >= a1 {
 				continue
 			}
@@ -708,7 +708,7 @@ func (s *subset) report(ulo, ext []int, cfg *spans, v []int, fn func(v []int, re
 		for a := 0; a < k-1; a++ {
 			u[a] = ulo[a] + idx[a]
 		}
-		for j := int(cfg.lo[row]); j <= int(cfg.hi[row]); j++ {
+		for j := cfg.lo[row]; j <= cfg.hi[row]; j++ {
 			u[k-1] = ulo[k-1] + j
 			if !s.valid(u) {
 				continue
