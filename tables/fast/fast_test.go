@@ -708,3 +708,30 @@ func TestLargeNormal(t *testing.T) {
 	}
 	t.Logf("%d configurations; worst %.12g at %v; %d checked directly, largest difference %.3g absolute, %.3g relative", n, top, worst, len(sample), absErr, relErr)
 }
+
+// TestLastRange checks the interval of valid last differences against a
+// direct test of the sorted gaps.
+func TestLastRange(t *testing.T) {
+	const d = 3
+	s := &subset{d: d}
+	gapsOK := func(vals []int) bool {
+		v := append([]int(nil), vals...)
+		sortSmall(v)
+		for i := 1; i < len(v); i++ {
+			if v[i]-v[i-1] > d {
+				return false
+			}
+		}
+		return true
+	}
+	for a := -10; a <= 10; a++ {
+		for b := -10; b <= 10; b++ {
+			lo, hi := s.lastRange([]int{a, b})
+			for x := -20; x <= 20; x++ {
+				if in, want := lo <= x && x <= hi, gapsOK([]int{0, a, b, x}); in != want {
+					t.Fatalf("u=(%d, %d): lastRange [%d, %d] holds %d: %v, want %v", a, b, lo, hi, x, in, want)
+				}
+			}
+		}
+	}
+}

@@ -307,55 +307,50 @@ func (s *subset) regrets(ulo, ext []int) (*spans, error) {
 	return need[k+1], nil
 }
 
-// valid reports whether the values (0, u...) have sorted consecutive gaps
-// of at most d: whether u are the value differences of a configuration.
-func (s *subset) valid(u []int) bool {
-	var v [16]int
+// lastRange returns the values x of the last difference for which
+// (0, u..., x) are the value differences of a configuration, where u holds
+// the other differences: they form the interval [lo, hi] (empty when
+// lo > hi). Sorted, the fixed values f may have at most one gap wider than
+// d, which x must split; with none, x may lie anywhere within d of them.
+func (s *subset) lastRange(u []int) (lo, hi int) {
+	var f [16]int
 	m := len(u) + 1
-	copy(v[1:], u)
-	sortSmall(v[:m])
+	copy(f[1:], u)
+	sortSmall(f[:m])
+	lo, hi = f[0]-s.d, f[m-1]+s.d
+	wide := 0
 	for a := 1; a < m; a++ {
-		if v[a]-v[a-1] > s.d {
-			return false
+		if f[a]-f[a-1] > s.d {
+			wide++
+			lo, hi = f[a]-s.d, f[a-1]+s.d
 		}
 	}
-	return true
+	if wide > 1 {
+		return 1, 0
+	}
+	return lo, hi
 }
 
-// validSpans returns, for every row of the tile, the hull of the
-// configurations along the last axis.
+// validSpans returns, for every row of the tile, the configurations along
+// the last axis: an interval, by lastRange.
 func (s *subset) validSpans(ulo, ext []int) *spans {
 	k := s.k
 	out := newSpans(ext[:k-1])
 	rst := strides(out.ext)
 	last := ext[k-1]
-	parallel(s.workers, len(out.lo), func(wk, lo, hi int) {
-		sc := &s.scratch[wk]
-		u := make([]int, k)
-		for row := lo; row < hi; row++ {
-			decode(row, out.ext, rst, sc.idx)
-			for a := 0; a < k-1; a++ {
-				u[a] = ulo[a] + sc.idx[a]
-			}
-			first, end := 0, last-1
-			for ; first < last; first++ {
-				u[k-1] = ulo[k-1] + first
-				if s.valid(u) {
-					break
-				}
-			}
-			for ; end > first; end-- {
-				u[k-1] = ulo[k-1] + end
-				if s.valid(u) {
-					break
-				}
-			}
-			out.lo[row], out.hi[row] = first, end
-			if first == last {
-				out.lo[row], out.hi[row] = 1, 0
-			}
+	u := make([]int, k-1)
+	for row := range out.lo {
+		decode(row, out.ext, rst, u)
+		for a := range u {
+			u[a] += ulo[a]
 		}
-	})
+		lo, hi := s.lastRange(u)
+		lo, hi = max(lo-ulo[k-1], 0), min(hi-ulo[k-1], last-1)
+		if lo > hi {
+			lo, hi = 1, 0
+		}
+		out.lo[row], out.hi[row] = lo, hi
+	}
 	return out
 }
 
@@ -696,7 +691,8 @@ func (s *subset) diagPass(a []float64, st, ulo, ext []int, i int, rs []float64, 
 	})
 }
 
-// report calls fn for every configuration in the tile.
+// report calls fn for every configuration in the tile: every entry of
+// the spans cfg.
 func (s *subset) report(ulo, ext []int, cfg *spans, v []int, fn func(v []int, regret float64)) {
 	k := s.k
 	idx := make([]int, k)
@@ -710,9 +706,6 @@ func (s *subset) report(ulo, ext []int, cfg *spans, v []int, fn func(v []int, re
 		}
 		for j := cfg.lo[row]; j <= cfg.hi[row]; j++ {
 			u[k-1] = ulo[k-1] + j
-			if !s.valid(u) {
-				continue
-			}
 			lowest := 0
 			for _, x := range u {
 				lowest = min(lowest, x)
