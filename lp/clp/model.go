@@ -227,6 +227,21 @@ func (m *Model) Solve(ctx context.Context) (*lp.Solution, error) {
 	if m.solved {
 		alg = Dual
 	}
+	if alg < Dual || alg > DualPresolve {
+		return nil, fmt.Errorf("clp: unknown algorithm %d", int(alg))
+	}
+	defer runtime.KeepAlive(m)
+	// A column in no row whose cost improves without limit makes the
+	// problem unbounded if the rest is feasible. CLP 1.17 gets such
+	// problems wrong (it scales empty columns by about 1e20 and then
+	// reports primal infeasible, or optimal with huge dual
+	// infeasibilities), so these columns are fixed at a finite value for
+	// the solve and the verdict is drawn here.
+	ray := m.emptyRays()
+	if len(ray) > 0 {
+		restore := m.fixColumns(ray)
+		defer restore()
+	}
 	switch alg {
 	case Dual:
 		C.Clp_dual(m.ptr, 0)
@@ -236,20 +251,45 @@ func (m *Model) Solve(ctx context.Context) (*lp.Solution, error) {
 		C.Clp_initialSolve(m.ptr)
 	case DualPresolve:
 		C.Clp_initialDualSolve(m.ptr)
-	default:
-		return nil, fmt.Errorf("clp: unknown algorithm %d", int(alg))
 	}
 	m.solved = true
-	defer runtime.KeepAlive(m)
-	if C.Clp_status(m.ptr) == 1 && m.emptyRay() {
-		// CLP 1.17 scales a column without entries absurdly (by about
-		// 1e20) and then reports a feasible problem that is unbounded
-		// along such a column as primal infeasible. Unscaled, it gets
-		// the status right; only this rare outcome pays for the check.
-		scaling := C.Clp_scalingFlag(m.ptr)
-		C.Clp_scaling(m.ptr, 0)
+	iterations := int(C.Clp_numberIterations(m.ptr))
+	if C.Clp_status(m.ptr) == 1 {
+		// The dual simplex (and the drivers built on it) can call an
+		// unbounded problem with free columns primal infeasible after
+		// 0 iterations (seen on random LPs, against GLPK). The primal
+		// simplex from the final basis gives the verdict when it finds
+		// the problem unbounded or solves it; when it fails instead (it
+		// can stop on errors on problems that are infeasible), the
+		// verdict stays infeasible.
 		C.Clp_primal(m.ptr, 0)
-		C.Clp_scaling(m.ptr, scaling)
+		iterations += int(C.Clp_numberIterations(m.ptr))
+		if st := C.Clp_status(m.ptr); st != 0 && st != 2 {
+			C.Clp_setProblemStatus(m.ptr, 1)
+			C.Clp_setSecondaryStatus(m.ptr, 0)
+		}
+	}
+	if C.Clp_status(m.ptr) == 0 {
+		// Clean up with the primal simplex from the final basis. The
+		// dual simplex works with artificial bounds of 1e10 on columns
+		// with an infinite bound, and the solution it leaves can carry
+		// their round-off: 6e-6 in the objective on a 5-row problem with
+		// free columns, where this clean-up recomputed the exact optimum
+		// in 0 iterations. The time limit, which may have run out just
+		// as the main solve ended, does not apply to it.
+		C.Clp_setMaximumSeconds(m.ptr, -1)
+		C.Clp_primal(m.ptr, 0)
+		iterations += int(C.Clp_numberIterations(m.ptr))
+		if sec := C.Clp_secondaryStatus(m.ptr); sec >= 2 && sec <= 4 {
+			// Optimal only for the scaled problem. On random LPs this
+			// was seen on problems that are in fact unbounded; the
+			// primal simplex without scaling settles it.
+			scaling := C.Clp_scalingFlag(m.ptr)
+			C.Clp_scaling(m.ptr, 0)
+			C.Clp_primal(m.ptr, 0)
+			iterations += int(C.Clp_numberIterations(m.ptr))
+			C.Clp_scaling(m.ptr, scaling)
+		}
 	}
 
 	if err := ctx.Err(); err != nil {
@@ -258,11 +298,15 @@ func (m *Model) Solve(ctx context.Context) (*lp.Solution, error) {
 	if err := m.statusError(); err != nil {
 		return nil, err
 	}
+	if len(ray) > 0 {
+		return nil, &lp.StatusError{Backend: "clp", Status: lp.Unbounded,
+			Detail: fmt.Sprintf("column %d is in no row and its cost improves without limit", ray[0])}
+	}
 	sol := &lp.Solution{
 		Objective:  float64(C.Clp_objectiveValue(m.ptr)),
 		X:          make([]float64, m.cols),
 		RowDual:    make([]float64, m.rows),
-		Iterations: int(C.Clp_numberIterations(m.ptr)),
+		Iterations: iterations,
 	}
 	if m.cols > 0 {
 		copy(sol.X, unsafe.Slice((*float64)(unsafe.Pointer(C.Clp_getColSolution(m.ptr))), m.cols))
@@ -273,25 +317,47 @@ func (m *Model) Solve(ctx context.Context) (*lp.Solution, error) {
 	return sol, nil
 }
 
-// emptyRay reports whether some column without entries improves the
-// objective without limit: negative cost and no upper bound, or positive
+// emptyRays returns the columns without nonzero entries whose cost
+// improves without limit: negative cost and no upper bound, or positive
 // cost and no lower bound.
-func (m *Model) emptyRay() bool {
+func (m *Model) emptyRays() []int {
 	if m.cols == 0 {
-		return false
+		return nil
 	}
 	obj := unsafe.Slice((*float64)(unsafe.Pointer(C.Clp_getObjCoefficients(m.ptr))), m.cols)
 	lo := unsafe.Slice((*float64)(unsafe.Pointer(C.Clp_getColLower(m.ptr))), m.cols)
 	up := unsafe.Slice((*float64)(unsafe.Pointer(C.Clp_getColUpper(m.ptr))), m.cols)
+	var ray []int
 	for j, u := range m.used {
-		if u {
-			continue
-		}
-		if obj[j] < 0 && up[j] >= 1e30 || obj[j] > 0 && lo[j] <= -1e30 {
-			return true
+		if !u && (obj[j] < 0 && up[j] >= 1e30 || obj[j] > 0 && lo[j] <= -1e30) {
+			ray = append(ray, j)
 		}
 	}
-	return false
+	return ray
+}
+
+// fixColumns fixes the given columns at their finite bound, or at 0 if
+// they have none, and returns a function that restores their bounds.
+func (m *Model) fixColumns(cols []int) (restore func()) {
+	lo := append([]float64(nil), unsafe.Slice((*float64)(unsafe.Pointer(C.Clp_getColLower(m.ptr))), m.cols)...)
+	up := append([]float64(nil), unsafe.Slice((*float64)(unsafe.Pointer(C.Clp_getColUpper(m.ptr))), m.cols)...)
+	savedLo, savedUp := append([]float64(nil), lo...), append([]float64(nil), up...)
+	for _, j := range cols {
+		v := 0.0
+		switch {
+		case lo[j] > -1e30:
+			v = lo[j]
+		case up[j] < 1e30:
+			v = up[j]
+		}
+		lo[j], up[j] = v, v
+	}
+	C.Clp_chgColumnLower(m.ptr, dptr(lo))
+	C.Clp_chgColumnUpper(m.ptr, dptr(up))
+	return func() {
+		C.Clp_chgColumnLower(m.ptr, dptr(savedLo))
+		C.Clp_chgColumnUpper(m.ptr, dptr(savedUp))
+	}
 }
 
 // badEmptyRow returns a row without entries whose bounds exclude 0, or -1.

@@ -137,3 +137,114 @@ func TestContext(t *testing.T) {
 		t.Errorf("cancelled context: %v", err)
 	}
 }
+
+// general returns a random LP with every kind of row and column bound and
+// small integer data (invented for tests). Most are infeasible or
+// unbounded, which is the point: the two backends must agree on the
+// status too.
+func general(rng *rand.Rand, m, n int) *lp.Problem {
+	p := &lp.Problem{}
+	for range n {
+		lo, up := -inf, inf
+		switch rng.IntN(5) {
+		case 0:
+		case 1:
+			lo = float64(rng.IntN(5) - 2)
+		case 2:
+			up = float64(rng.IntN(5) - 2)
+		default:
+			lo = float64(rng.IntN(5) - 2)
+			up = lo + float64(rng.IntN(4))
+		}
+		p.AddCol(float64(rng.IntN(11)-5), lo, up)
+	}
+	for range m {
+		var idx []int
+		var val []float64
+		for _, j := range rng.Perm(n)[:1+rng.IntN(n)] {
+			idx = append(idx, j)
+			val = append(val, float64(rng.IntN(9)-4))
+		}
+		lo := float64(rng.IntN(9) - 4)
+		switch rng.IntN(4) {
+		case 0:
+			p.AddRow(idx, val, lo, lo)
+		case 1:
+			p.AddRow(idx, val, lo, inf)
+		case 2:
+			p.AddRow(idx, val, -inf, lo)
+		default:
+			p.AddRow(idx, val, lo, lo+float64(rng.IntN(5)))
+		}
+	}
+	return p
+}
+
+// loosened returns a random feasible boxed LP with some column bounds
+// removed: still feasible, often unbounded.
+func loosened(rng *rand.Rand) *lp.Problem {
+	p, _ := lptest.Boxed(rng, 2+rng.IntN(30), 2+rng.IntN(30), 0.1+0.6*rng.Float64())
+	for j := range p.NumCols() {
+		switch rng.IntN(6) {
+		case 0:
+			p.ColLo[j], p.ColUp[j] = -inf, inf
+		case 1:
+			p.ColUp[j] = inf
+		case 2:
+			p.ColLo[j] = -inf
+		}
+	}
+	return p
+}
+
+// TestStatusAgainstCLP compares the outcome of gonum and CLP on random LPs
+// of every status. Each found faults in the other during development
+// (gonum's phase I panicking, CLP calling unbounded problems infeasible).
+func TestStatusAgainstCLP(t *testing.T) {
+	rng := rand.New(rand.NewPCG(13, 14))
+	status := func(err error) lp.Status {
+		var se *lp.StatusError
+		if errors.As(err, &se) {
+			return se.Status
+		}
+		if err != nil {
+			return lp.Unknown
+		}
+		return lp.Optimal
+	}
+	seen := map[lp.Status]int{}
+	for k := range 400 {
+		var p *lp.Problem
+		if k%2 == 0 {
+			p = general(rng, 1+rng.IntN(25), 1+rng.IntN(25))
+		} else {
+			p = loosened(rng)
+		}
+		want, werr := clp.Solver{}.Solve(context.Background(), p)
+		got, gerr := gonumlp.Solver{}.Solve(context.Background(), p)
+		ws, gs := status(werr), status(gerr)
+		seen[ws]++
+		if ws != gs {
+			t.Errorf("problem %d: clp: %v; gonum: %v", k, werr, gerr)
+			continue
+		}
+		if ws != lp.Optimal {
+			continue
+		}
+		if math.Abs(got.Objective-want.Objective) > 1e-7*(1+math.Abs(want.Objective)) {
+			t.Errorf("problem %d: gonum objective %.12g, clp %.12g", k, got.Objective, want.Objective)
+		}
+		for name, s := range map[string]*lp.Solution{"gonum": got, "clp": want} {
+			if err := lptest.CheckOptimal(p, s.X, s.RowDual, s.Objective, 1e-8); err != nil {
+				t.Errorf("problem %d: %s: %v", k, name, err)
+			}
+		}
+	}
+	// The generators must exercise every outcome.
+	for _, s := range []lp.Status{lp.Optimal, lp.Infeasible, lp.Unbounded} {
+		if seen[s] < 40 {
+			t.Errorf("only %d problems ended %v", seen[s], s)
+		}
+	}
+	t.Logf("outcomes: %v", seen)
+}
