@@ -298,13 +298,56 @@ func (s *subset) regrets(ulo, ext []int) (*spans, error) {
 		if !nonzero[i] {
 			continue
 		}
+		// Member i adds nothing where it holds the highest value: work
+		// back from the configurations where it does not.
+		ni := make([]*spans, k+2)
+		ni[k+1] = s.belowTop(ulo, need[k+1], i)
+		ni[k] = s.diagDilate(ni[k+1])
+		for ax := k - 1; ax >= 0; ax-- {
+			ni[ax] = s.axisDilate(ni[ax+1], ax)
+		}
 		a := s.x[i][:size]
 		for ax := 0; ax < k; ax++ {
-			s.axisPass(a, xst, ax, need[ax+1], s.stageExt(ext, ax+1))
+			s.axisPass(a, xst, ax, ni[ax+1], s.stageExt(ext, ax+1))
 		}
-		s.diagPass(a, xst, ulo, ext, i, rs, need[k+1])
+		s.diagPass(a, xst, ulo, ext, i, rs, ni[k+1])
 	}
 	return need[k+1], nil
+}
+
+// belowTop returns the part of the spans cfg (of the tile with lowest
+// corner ulo) where member i's value is below the highest: where
+// max u - u_i > 0, with u_0 = 0.
+func (s *subset) belowTop(ulo []int, cfg *spans, i int) *spans {
+	k := s.k
+	out := newSpans(cfg.ext)
+	rst := strides(cfg.ext)
+	idx := make([]int, k-1)
+	for row := range cfg.lo {
+		lo, hi := cfg.lo[row], cfg.hi[row]
+		decode(row, cfg.ext, rst, idx)
+		top, ui := 0, 0 // highest fixed value, and u_i if fixed
+		for a := range idx {
+			u := ulo[a] + idx[a]
+			top = max(top, u)
+			if a+1 == i {
+				ui = u
+			}
+		}
+		switch {
+		case i == k:
+			// u_i is the last difference x: below top when x < top.
+			hi = min(hi, top-1-ulo[k-1])
+		case ui == top:
+			// u_i is the highest fixed value: below top when x > u_i.
+			lo = max(lo, ui+1-ulo[k-1])
+		}
+		if lo > hi {
+			lo, hi = 1, 0
+		}
+		out.lo[row], out.hi[row] = lo, hi
+	}
+	return out
 }
 
 // lastRange returns the values x of the last difference for which
@@ -659,21 +702,6 @@ func (s *subset) diagPass(a []float64, st, ulo, ext []int, i int, rs []float64, 
 				if b+1 == i {
 					ui = ub
 				}
-			}
-			// Skip runs where member i is the top at every u.
-			need := false
-			for e := a0; e < a1; e++ {
-				ul := ulo[k-1] + e
-				if i == k {
-					ui = ul
-				}
-				if max(mo, ul) != ui {
-					need = true
-					break
-				}
-			}
-			if !need {
-				continue
 			}
 			tmp := sc.tmp[:a1-a0]
 			rows(tmp, a[baseA+a0:], dsum, q)
