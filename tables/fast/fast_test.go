@@ -1,4 +1,4 @@
-package fast
+package fast_test
 
 import (
 	"context"
@@ -13,6 +13,7 @@ import (
 	"github.com/pickwise/pickwise/discretize"
 	"github.com/pickwise/pickwise/tables"
 	"github.com/pickwise/pickwise/tables/exact"
+	"github.com/pickwise/pickwise/tables/fast"
 	"github.com/pickwise/pickwise/tables/result"
 	"gonum.org/v1/gonum/stat/distuv"
 )
@@ -156,7 +157,7 @@ func key(v []int) string { return fmt.Sprint(v) }
 // compare checks that Regrets reports every configuration of every subset
 // exactly once, with the direct evaluator's regret to 1e-12, and returns
 // the largest absolute and relative differences.
-func compare(t *testing.T, e Evaluator, l *tables.Layout, rule tables.Rule, d int) (absErr, relErr float64) {
+func compare(t *testing.T, e fast.Evaluator, l *tables.Layout, rule tables.Rule, d int) (absErr, relErr float64) {
 	t.Helper()
 	for _, q := range tables.Subsets(l.N()) {
 		got := map[string]float64{}
@@ -221,7 +222,7 @@ func TestAgreesWithDirect(t *testing.T) {
 			rng := rand.New(rand.NewPCG(c.seed, 99))
 			l := layout(t, randomModel(t, rng, c.n, c.lo, c.hi))
 			for _, rc := range rulesFor(l, rng) {
-				a, r := compare(t, Evaluator{}, l, rc.rule, l.D+rc.widen)
+				a, r := compare(t, fast.Evaluator{}, l, rc.rule, l.D+rc.widen)
 				t.Logf("%s: D=%d largest difference %.3g absolute, %.3g relative", rc.name, l.D, a, r)
 			}
 		})
@@ -236,8 +237,8 @@ func TestSmallGapBounds(t *testing.T) {
 	rule := randomTable(l, rng, l.D)
 	for _, d := range []int{0, 1, 2, 5, l.D + 3} {
 		t.Run(fmt.Sprint("d=", d), func(t *testing.T) {
-			compare(t, Evaluator{}, l, rule, d)
-			compare(t, Evaluator{}, l, tables.Greedy{}, d)
+			compare(t, fast.Evaluator{}, l, rule, d)
+			compare(t, fast.Evaluator{}, l, tables.Greedy{}, d)
 		})
 	}
 }
@@ -294,7 +295,7 @@ func TestWorstCaseTies(t *testing.T) {
 			l := layout(t, c.m)
 			rule := c.rule(l)
 			d := l.D + c.widen
-			got, err := WorstCase(l, rule, d)
+			got, err := fast.WorstCase(l, rule, d)
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -303,11 +304,19 @@ func TestWorstCaseTies(t *testing.T) {
 				t.Errorf("fast worst case %.17g at %v (subset %v, %d configurations); direct %.17g at %v (subset %v, %d configurations)",
 					got.Regret, got.Values, got.Subset.Members(), got.Configurations, want.Regret, want.Values, want.Subset.Members(), want.Configurations)
 			}
+			// Tiles report in another order; the tie-break must not care.
+			tiled, err := fast.Evaluator{MaxBytes: 1 << 14, Workers: 1}.WorstCase(l, rule, d)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if tiled.Regret != want.Regret || key(tiled.Values) != key(want.Values) {
+				t.Errorf("in small tiles: worst case %.17g at %v; direct %.17g at %v", tiled.Regret, tiled.Values, want.Regret, want.Values)
+			}
 			ties := 0
 			for _, q := range tables.Subsets(l.N()) {
 				vs, regs := direct(l, rule, q, d)
 				m := map[string]float64{}
-				if err := Regrets(l, rule, q, d, func(v []int, reg float64) { m[key(v)] = reg }); err != nil {
+				if err := fast.Regrets(l, rule, q, d, func(v []int, reg float64) { m[key(v)] = reg }); err != nil {
 					t.Fatal(err)
 				}
 				for i, v := range vs {
@@ -327,24 +336,8 @@ func TestWorstCaseTies(t *testing.T) {
 	}
 }
 
-// TestEarlierIsEnumerationOrder checks the order used to break ties
-// against the order in which tables.Configurations lists configurations.
-func TestEarlierIsEnumerationOrder(t *testing.T) {
-	for _, q := range tables.Subsets(4) {
-		var prev []int
-		mem := q.Members()
-		tables.Configurations(4, q, 3, func(v []int) bool {
-			if prev != nil && (!earlier(prev, v, mem) || earlier(v, prev, mem)) {
-				t.Fatalf("subset %v: %v listed before %v, earlier disagrees", mem, prev, v)
-			}
-			prev = append(prev[:0], v...)
-			return true
-		})
-	}
-}
-
 // collect returns Regrets' reports for every subset, in report order.
-func collect(t *testing.T, e Evaluator, l *tables.Layout, rule tables.Rule, d int) ([]string, []float64) {
+func collect(t *testing.T, e fast.Evaluator, l *tables.Layout, rule tables.Rule, d int) ([]string, []float64) {
 	t.Helper()
 	var keys []string
 	var regs []float64
@@ -363,20 +356,13 @@ func collect(t *testing.T, e Evaluator, l *tables.Layout, rule tables.Rule, d in
 // TestTilesAndWorkers checks that a tight memory budget (many tiles) and a
 // single goroutine give the same regrets, bit for bit, as one tile on
 // every core: each sum has a fixed order whatever the split of the work.
+// (TestTiles checks that the budget does split the box.)
 func TestTilesAndWorkers(t *testing.T) {
 	rng := rand.New(rand.NewPCG(11, 12))
 	l := layout(t, randomModel(t, rng, 3, 3, 5))
 	rule := randomTable(l, rng, l.D)
-	q := tables.SetOf(0, 1, 2)
-	s, err := newSubset(l, rule, q, l.D, 1, 1<<16)
-	if err != nil {
-		t.Fatal(err)
-	}
-	if s.tile[0] >= 2*s.span+1 || s.tile[1] >= 2*s.span+1 {
-		t.Fatalf("a 64 KiB budget left tiles %v for a box of side %d: the test does not tile", s.tile, 2*s.span+1)
-	}
-	k0, r0 := collect(t, Evaluator{}, l, rule, l.D)
-	for _, e := range []Evaluator{{Workers: 1}, {MaxBytes: 1 << 16}, {MaxBytes: 1 << 16, Workers: 1}} {
+	k0, r0 := collect(t, fast.Evaluator{}, l, rule, l.D)
+	for _, e := range []fast.Evaluator{{Workers: 1}, {MaxBytes: 1 << 16}, {MaxBytes: 1 << 16, Workers: 1}} {
 		k1, r1 := collect(t, e, l, rule, l.D)
 		got := map[string]float64{}
 		for i := range k1 {
@@ -438,13 +424,13 @@ func TestNormalAndSolved(t *testing.T) {
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
-			a, r := compare(t, Evaluator{}, c.l, c.rule, c.l.D+c.widen)
+			a, r := compare(t, fast.Evaluator{}, c.l, c.rule, c.l.D+c.widen)
 			t.Logf("D=%d largest difference %.3g absolute, %.3g relative", c.l.D, a, r)
 		})
 	}
 	// The worst case of the shipped tables is the certified upper bound.
 	for _, s := range []*result.Solution{solvedSmall, solvedNormal} {
-		w, err := WorstCase(s.Layout, s.Tables, s.Layout.D)
+		w, err := fast.WorstCase(s.Layout, s.Tables, s.Layout.D)
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -474,7 +460,7 @@ func TestWorkedExample(t *testing.T) {
 			m := &discretize.Model{Step: h, Channels: []discretize.Channel{{Name: "A", Kind: "exact", PMF: pa}, {Name: "B", Kind: "pmf", PMF: pb}}}
 			l := layout(t, m)
 			for _, d := range []int{l.D + result.GreedyWidth(l), 3*l.D + 7} {
-				g, err := WorstCase(l, tables.Greedy{}, d)
+				g, err := fast.WorstCase(l, tables.Greedy{}, d)
 				if err != nil {
 					t.Fatal(err)
 				}
@@ -483,7 +469,7 @@ func TestWorkedExample(t *testing.T) {
 				}
 			}
 			s := solve(t, m)
-			o, err := WorstCase(l, s.Tables, l.D)
+			o, err := fast.WorstCase(l, s.Tables, l.D)
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -503,7 +489,7 @@ func TestWorkedExample(t *testing.T) {
 func TestGaussianPair(t *testing.T) {
 	s := math.Sqrt(0.5)
 	l := layout(t, normalModel(t, 0.1, 1e-6, s, s))
-	g, err := WorstCase(l, tables.Greedy{}, l.D+result.GreedyWidth(l))
+	g, err := fast.WorstCase(l, tables.Greedy{}, l.D+result.GreedyWidth(l))
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -527,17 +513,24 @@ func TestCandidates(t *testing.T) {
 	rng := rand.New(rand.NewPCG(21, 22))
 	l := layout(t, randomModel(t, rng, 3, 2, 4))
 	rule := randomTable(l, rng, l.D)
-	keys, regs := collect(t, Evaluator{}, l, rule, l.D)
+	keys, regs := collect(t, fast.Evaluator{}, l, rule, l.D)
 	top := math.Inf(-1)
 	for _, r := range regs {
 		top = max(top, r)
 	}
-	w, err := WorstCase(l, rule, l.D)
+	w, err := fast.WorstCase(l, rule, l.D)
 	if err != nil {
 		t.Fatal(err)
 	}
+	pos := map[string]int{} // position in enumeration order
+	for _, q := range tables.Subsets(l.N()) {
+		tables.Configurations(l.N(), q, l.D, func(v []int) bool {
+			pos[key(v)] = len(pos)
+			return true
+		})
+	}
 	for _, tol := range []float64{0, 1e-9, 0.05, 0.3} {
-		cands, err := Candidates(l, rule, l.D, tol)
+		cands, err := fast.Candidates(l, rule, l.D, tol)
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -554,11 +547,8 @@ func TestCandidates(t *testing.T) {
 			if !want[key(v)] {
 				t.Errorf("tol %g: %v is not within tol of the worst case", tol, v)
 			}
-			if i > 0 {
-				qa, qb := subsetOf(cands[i-1]), subsetOf(v)
-				if rank(qa) > rank(qb) || qa == qb && !earlier(cands[i-1], v, qa.Members()) {
-					t.Errorf("tol %g: candidates %v and %v out of enumeration order", tol, cands[i-1], v)
-				}
+			if i > 0 && pos[key(cands[i-1])] >= pos[key(v)] {
+				t.Errorf("tol %g: candidates %v and %v out of enumeration order", tol, cands[i-1], v)
 			}
 		}
 		if len(cands) == 0 || key(cands[0]) != key(w.Values) {
@@ -571,7 +561,7 @@ func TestCandidates(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	cands, err := Candidates(s.Layout, s.Tables, s.Layout.D, 1e-9)
+	cands, err := fast.Candidates(s.Layout, s.Tables, s.Layout.D, 1e-9)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -584,26 +574,6 @@ func TestCandidates(t *testing.T) {
 	if best.Cmp(s.Upper) != 0 {
 		t.Errorf("largest exact regret over %d candidates %s, certified worst case %s", len(cands), best.RatString(), s.Upper.RatString())
 	}
-}
-
-func subsetOf(v []int) tables.Set {
-	var q tables.Set
-	for i, x := range v {
-		if x > tables.Far/2 {
-			q |= 1 << uint(i)
-		}
-	}
-	return q
-}
-
-// rank returns the position of q in tables.Subsets order.
-func rank(q tables.Set) int {
-	for i, s := range tables.Subsets(16) {
-		if s == q {
-			return i
-		}
-	}
-	return -1
 }
 
 // farRule gives probability to a channel that reads tables.Far.
@@ -628,17 +598,17 @@ func TestErrors(t *testing.T) {
 		name string
 		run  func() error
 	}{
-		{"nil layout", func() error { _, err := WorstCase(nil, tables.Greedy{}, 3); return err }},
-		{"nil rule", func() error { _, err := WorstCase(l, nil, 3); return err }},
-		{"negative gap", func() error { _, err := WorstCase(l, tables.Greedy{}, -1); return err }},
-		{"huge gap", func() error { _, err := WorstCase(l, tables.Greedy{}, 1<<40); return err }},
-		{"one channel", func() error { return Regrets(l, tables.Greedy{}, tables.SetOf(1), 3, func([]int, float64) {}) }},
-		{"channel out of range", func() error { return Regrets(l, tables.Greedy{}, tables.SetOf(0, 3), 3, func([]int, float64) {}) }},
-		{"tiny budget", func() error { _, err := Evaluator{MaxBytes: 100}.WorstCase(l, tables.Greedy{}, 3); return err }},
-		{"negative tolerance", func() error { _, err := Candidates(l, tables.Greedy{}, 3, -1); return err }},
-		{"NaN tolerance", func() error { _, err := Candidates(l, tables.Greedy{}, 3, math.NaN()); return err }},
+		{"nil layout", func() error { _, err := fast.WorstCase(nil, tables.Greedy{}, 3); return err }},
+		{"nil rule", func() error { _, err := fast.WorstCase(l, nil, 3); return err }},
+		{"negative gap", func() error { _, err := fast.WorstCase(l, tables.Greedy{}, -1); return err }},
+		{"huge gap", func() error { _, err := fast.WorstCase(l, tables.Greedy{}, 1<<40); return err }},
+		{"one channel", func() error { return fast.Regrets(l, tables.Greedy{}, tables.SetOf(1), 3, func([]int, float64) {}) }},
+		{"channel out of range", func() error { return fast.Regrets(l, tables.Greedy{}, tables.SetOf(0, 3), 3, func([]int, float64) {}) }},
+		{"tiny budget", func() error { _, err := fast.Evaluator{MaxBytes: 100}.WorstCase(l, tables.Greedy{}, 3); return err }},
+		{"negative tolerance", func() error { _, err := fast.Candidates(l, tables.Greedy{}, 3, -1); return err }},
+		{"NaN tolerance", func() error { _, err := fast.Candidates(l, tables.Greedy{}, 3, math.NaN()); return err }},
 		{"rule picks a far channel", func() error {
-			return Regrets(l, farRule{}, tables.SetOf(1, 2), 3, func([]int, float64) {})
+			return fast.Regrets(l, farRule{}, tables.SetOf(1, 2), 3, func([]int, float64) {})
 		}},
 	}
 	for _, c := range cases {
@@ -669,7 +639,7 @@ func TestLargeNormal(t *testing.T) {
 	var worst []int
 	top := math.Inf(-1)
 	n := 0
-	err := Regrets(l, tables.Greedy{}, q, l.D, func(v []int, reg float64) {
+	err := fast.Regrets(l, tables.Greedy{}, q, l.D, func(v []int, reg float64) {
 		n++
 		if reg > top {
 			top, worst = reg, append(worst[:0], v...)
@@ -707,31 +677,4 @@ func TestLargeNormal(t *testing.T) {
 		}
 	}
 	t.Logf("%d configurations; worst %.12g at %v; %d checked directly, largest difference %.3g absolute, %.3g relative", n, top, worst, len(sample), absErr, relErr)
-}
-
-// TestLastRange checks the interval of valid last differences against a
-// direct test of the sorted gaps.
-func TestLastRange(t *testing.T) {
-	const d = 3
-	s := &subset{d: d}
-	gapsOK := func(vals []int) bool {
-		v := append([]int(nil), vals...)
-		sortSmall(v)
-		for i := 1; i < len(v); i++ {
-			if v[i]-v[i-1] > d {
-				return false
-			}
-		}
-		return true
-	}
-	for a := -10; a <= 10; a++ {
-		for b := -10; b <= 10; b++ {
-			lo, hi := s.lastRange([]int{a, b})
-			for x := -20; x <= 20; x++ {
-				if in, want := lo <= x && x <= hi, gapsOK([]int{0, a, b, x}); in != want {
-					t.Fatalf("u=(%d, %d): lastRange [%d, %d] holds %d: %v, want %v", a, b, lo, hi, x, in, want)
-				}
-			}
-		}
-	}
 }
