@@ -14,14 +14,20 @@
 // so Y_i is a separable correlation of X_i with the noise pmfs of q_1..q_k
 // (one pass along each axis) and P_i one more pass along the diagonal with
 // the pmf of q_0. The regret at u is sum_i (max u - u_i) P_i(u). The cost
-// per subset is the size of a box of difference vectors times the sum of
-// the noise spreads, instead of the number of configurations times the
-// product of the spreads.
+// per subset is about the number of configurations times the sum of the
+// noise spreads, instead of times their product: each pass computes only
+// the values that the configurations need, and channel i only where it is
+// not the highest. Large boxes are split into tiles that fit a memory
+// budget.
 //
-// Every sum has non-negative terms and a fixed order, so results are
-// deterministic (independent of the number of goroutines) and agree with
-// tables.Layout.Regret to a relative error of a few hundred units of
-// float64 round-off at most.
+// Every sum has non-negative terms, at most one noise pmf long, in a fixed
+// order: results do not depend on the number of goroutines or tiles, and
+// their relative error is a small multiple of the float64 round-off (far
+// below that of the direct sum over joint outcomes, whose error grows
+// with their number).
+//
+// The rules evaluated must be translation invariant (see Regrets); every
+// rule of package tables is.
 package fast
 
 import (
