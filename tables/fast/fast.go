@@ -13,18 +13,20 @@
 //
 // so Y_i is a separable correlation of X_i with the noise pmfs of q_1..q_k
 // (one pass along each axis) and P_i one more pass along the diagonal with
-// the pmf of q_0. The regret at u is sum_i (max u - u_i) P_i(u). The cost
-// per subset is about the number of configurations times the sum of the
-// noise spreads, instead of times their product: each pass computes only
-// the values that the configurations need, and channel i only where it is
-// not the highest. Large boxes are split into tiles that fit a memory
-// budget.
+// the pmf of q_0. The regret at u is sum_i (max u - u_i) P_i(u).
 //
-// Every sum has non-negative terms, at most one noise pmf long, in a fixed
-// order: results do not depend on the number of goroutines or tiles, and
-// their relative error is a small multiple of the float64 round-off (far
-// below that of the direct sum over joint outcomes, whose error grows
-// with their number).
+// The cost per subset is the number of difference vectors that the
+// configurations reach through the noise times the sum of the noise
+// spreads, instead of the number of configurations times the product of
+// the spreads. Each pass computes only the values that the configurations
+// need, and channel i only where it is not the highest; large boxes are
+// split into tiles that fit a memory budget.
+//
+// Every sum has non-negative terms in a fixed order, so results do not
+// depend on the number of goroutines or tiles, and the relative error of a
+// regret is at most about (L + m) units of float64 round-off, L the total
+// length of the m members' noise pmfs: far below that of the direct sum
+// over joint outcomes, whose error grows with their number.
 //
 // The rules evaluated must be translation invariant (see Regrets); every
 // rule of package tables is.
