@@ -37,6 +37,8 @@ type subset struct {
 
 	x       [][]float64 // X_i of each member over a tile's reading box
 	r       []float64   // regrets over a tile
+	need    []*spans    // what each stage needs for every configuration
+	ni      []*spans    // what each stage needs for one member
 	scratch []scratch
 	fault   atomic.Bool // the rule gave probability to a channel outside the subset
 }
@@ -111,8 +113,9 @@ func (s *subset) bytes() float64 {
 		xs *= float64(s.xext(s.tile, a))
 		rs *= float64(t)
 	}
-	// Spans: k+2 stages of at most xs / (last extent) rows, 16 bytes each.
-	spans := float64(s.k+2) * 16 * xs / float64(s.xext(s.tile, s.k-1))
+	// Spans: two sets of k+2 stages of at most xs / (last extent) rows,
+	// 16 bytes each.
+	spans := float64(2*(s.k+2)) * 16 * xs / float64(s.xext(s.tile, s.k-1))
 	per := float64(len(s.l.Lo))*16 + float64(s.k)*16 + chunk*8
 	return 8*(float64(s.k+1)*xs+rs) + spans + float64(s.workers)*per
 }
@@ -134,6 +137,8 @@ func (s *subset) run(fn func(v []int, regret float64)) error {
 		s.x[i] = make([]float64, xsize)
 	}
 	s.r = make([]float64, rsize)
+	s.need = make([]*spans, k+2)
+	s.ni = make([]*spans, k+2)
 	t := make([]int, k)
 	ulo := make([]int, k)
 	ext := make([]int, k)
@@ -243,9 +248,19 @@ type spans struct {
 	lo, hi []int
 }
 
-func newSpans(ext []int) *spans {
+// reuse returns sp, allocated if nil, resized to extents ext; its
+// intervals are unspecified.
+func reuse(sp *spans, ext []int) *spans {
 	n := prod(ext)
-	return &spans{ext: append([]int(nil), ext...), lo: make([]int, n), hi: make([]int, n)}
+	if sp == nil {
+		sp = new(spans)
+	}
+	sp.ext = append(sp.ext[:0], ext...)
+	if cap(sp.lo) < n {
+		sp.lo, sp.hi = make([]int, n), make([]int, n)
+	}
+	sp.lo, sp.hi = sp.lo[:n], sp.hi[:n]
+	return sp
 }
 
 // stageExt returns the extents of the array after st axis passes over a
@@ -279,11 +294,11 @@ func (s *subset) regrets(ulo, ext []int) (*spans, error) {
 
 	// Work backwards from the configurations to the values each stage
 	// needs.
-	need := make([]*spans, k+2)
-	need[k+1] = s.validSpans(ulo, ext)
-	need[k] = s.diagDilate(need[k+1])
+	need, ni := s.need, s.ni
+	need[k+1] = s.validSpans(need[k+1], ulo, ext)
+	need[k] = s.diagDilate(need[k], need[k+1])
 	for ax := k - 1; ax >= 0; ax-- {
-		need[ax] = s.axisDilate(need[ax+1], ax)
+		need[ax] = s.axisDilate(need[ax], need[ax+1], ax)
 	}
 
 	// Values outside the spans keep whatever an earlier channel or tile
@@ -300,11 +315,10 @@ func (s *subset) regrets(ulo, ext []int) (*spans, error) {
 		}
 		// Member i adds nothing where it holds the highest value: work
 		// back from the configurations where it does not.
-		ni := make([]*spans, k+2)
-		ni[k+1] = s.belowTop(ulo, need[k+1], i)
-		ni[k] = s.diagDilate(ni[k+1])
+		ni[k+1] = s.belowTop(ni[k+1], ulo, need[k+1], i)
+		ni[k] = s.diagDilate(ni[k], ni[k+1])
 		for ax := k - 1; ax >= 0; ax-- {
-			ni[ax] = s.axisDilate(ni[ax+1], ax)
+			ni[ax] = s.axisDilate(ni[ax], ni[ax+1], ax)
 		}
 		a := s.x[i][:size]
 		for ax := 0; ax < k; ax++ {
@@ -318,9 +332,9 @@ func (s *subset) regrets(ulo, ext []int) (*spans, error) {
 // belowTop returns the part of the spans cfg (of the tile with lowest
 // corner ulo) where member i's value is below the highest: where
 // max u - u_i > 0, with u_0 = 0.
-func (s *subset) belowTop(ulo []int, cfg *spans, i int) *spans {
+func (s *subset) belowTop(dst *spans, ulo []int, cfg *spans, i int) *spans {
 	k := s.k
-	out := newSpans(cfg.ext)
+	out := reuse(dst, cfg.ext)
 	rst := strides(cfg.ext)
 	idx := make([]int, k-1)
 	for row := range cfg.lo {
@@ -376,9 +390,9 @@ func (s *subset) lastRange(u []int) (lo, hi int) {
 
 // validSpans returns, for every row of the tile, the configurations along
 // the last axis: an interval, by lastRange.
-func (s *subset) validSpans(ulo, ext []int) *spans {
+func (s *subset) validSpans(dst *spans, ulo, ext []int) *spans {
 	k := s.k
-	out := newSpans(ext[:k-1])
+	out := reuse(dst, ext[:k-1])
 	rst := strides(out.ext)
 	last := ext[k-1]
 	u := make([]int, k-1)
@@ -400,13 +414,13 @@ func (s *subset) validSpans(ulo, ext []int) *spans {
 // diagDilate returns the spans of Y that the diagonal pass needs to
 // produce the spans out: P at i reads Y at i + t(1, ..., 1), t in
 // [0, w_0].
-func (s *subset) diagDilate(out *spans) *spans {
+func (s *subset) diagDilate(dst, out *spans) *spans {
 	w0 := s.w[0]
 	ext := append([]int(nil), out.ext...)
 	for a := range ext {
 		ext[a] += w0
 	}
-	in := newSpans(ext)
+	in := reuse(dst, ext)
 	n := len(in.ext)
 	ist, ost := strides(in.ext), strides(out.ext)
 	diag := 0
@@ -456,11 +470,11 @@ func (s *subset) diagDilate(out *spans) *spans {
 // axisDilate returns the spans that the pass along axis ax needs to
 // produce the spans out: the output at j reads the input at j + t along
 // ax, t in [0, w].
-func (s *subset) axisDilate(out *spans, ax int) *spans {
+func (s *subset) axisDilate(dst, out *spans, ax int) *spans {
 	w := s.w[ax+1]
 	k := s.k
-	in := newSpans(out.ext)
 	if ax == k-1 {
+		in := reuse(dst, out.ext)
 		for r := range out.lo {
 			in.lo[r], in.hi[r] = out.lo[r], out.hi[r]
 			if out.lo[r] <= out.hi[r] {
@@ -471,7 +485,7 @@ func (s *subset) axisDilate(out *spans, ax int) *spans {
 	}
 	ext := append([]int(nil), out.ext...)
 	ext[ax] += w
-	in = newSpans(ext)
+	in := reuse(dst, ext)
 	ist, ost := strides(in.ext), strides(out.ext)
 	parallel(s.workers, len(in.lo), func(wk, lo, hi int) {
 		sc := &s.scratch[wk]
