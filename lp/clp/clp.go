@@ -76,6 +76,10 @@ type Solver struct {
 	MaxSeconds float64
 	// Algorithm is the CLP driver to use.
 	Algorithm Algorithm
+	// PrimalTolerance and DualTolerance are CLP's feasibility tolerances
+	// on the (scaled) primal and dual problems; 0 means CLP's default,
+	// 1e-7.
+	PrimalTolerance, DualTolerance float64
 }
 
 var _ lp.Solver = Solver{}
@@ -97,5 +101,7 @@ func (s Solver) Solve(ctx context.Context, p *lp.Problem) (*lp.Solution, error) 
 	m.LogLevel = s.LogLevel
 	m.MaxSeconds = s.MaxSeconds
 	m.Algorithm = s.Algorithm
+	m.PrimalTolerance = s.PrimalTolerance
+	m.DualTolerance = s.DualTolerance
 	return m.Solve(ctx)
 }

@@ -91,18 +91,32 @@ func TestDualIsSensitivity(t *testing.T) {
 
 // TestRandomDuality solves random feasible boxed LPs and checks primal
 // feasibility and strong duality with the row duals (weak duality makes
-// that a proof of optimality).
+// that a proof of optimality), with CLP's default tolerances and with
+// tight ones.
 func TestRandomDuality(t *testing.T) {
-	rng := rand.New(rand.NewPCG(1, 2))
-	for k := range 40 {
-		p, _ := lptest.Boxed(rng, 5+rng.IntN(40), 5+rng.IntN(40), 0.3)
-		sol, err := clp.Solver{}.Solve(context.Background(), p)
-		if err != nil {
-			t.Fatalf("problem %d: %v", k, err)
-		}
-		if err := lptest.CheckOptimal(p, sol.X, sol.RowDual, sol.Objective, 1e-8); err != nil {
-			t.Errorf("problem %d: %v", k, err)
-		}
+	cases := []struct {
+		name   string
+		solver clp.Solver
+		check  float64
+	}{
+		{"default tolerances", clp.Solver{}, 1e-8},
+		{"tolerances 1e-10", clp.Solver{PrimalTolerance: 1e-10, DualTolerance: 1e-10}, 1e-10},
+		{"primal simplex", clp.Solver{Algorithm: clp.Primal}, 1e-8},
+	}
+	for _, c := range cases {
+		t.Run(c.name, func(t *testing.T) {
+			rng := rand.New(rand.NewPCG(1, 2))
+			for k := range 40 {
+				p, _ := lptest.Boxed(rng, 5+rng.IntN(40), 5+rng.IntN(40), 0.3)
+				sol, err := c.solver.Solve(context.Background(), p)
+				if err != nil {
+					t.Fatalf("problem %d: %v", k, err)
+				}
+				if err := lptest.CheckOptimal(p, sol.X, sol.RowDual, sol.Objective, c.check); err != nil {
+					t.Errorf("problem %d: %v", k, err)
+				}
+			}
+		})
 	}
 }
 

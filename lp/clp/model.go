@@ -25,21 +25,22 @@ import (
 // memory is invisible to the Go runtime, so relying on that can exhaust
 // memory. A Model is not safe for concurrent use.
 type Model struct {
-	// LogLevel, MaxSeconds and Algorithm mean the same as in Solver. They
-	// are read at each Solve; Algorithm applies to the first solve only.
-	LogLevel   int
-	MaxSeconds float64
-	Algorithm  Algorithm
+	// These mean the same as in Solver. They are read at each Solve;
+	// Algorithm applies to the first solve only.
+	LogLevel                       int
+	MaxSeconds                     float64
+	Algorithm                      Algorithm
+	PrimalTolerance, DualTolerance float64
 
 	ptr     unsafe.Pointer
 	cleanup runtime.Cleanup
 	solved  bool // CLP holds a basis from an earlier solve
 	rows    int
 	cols    int
-	// used[j] reports whether column j has an entry in some row; see
-	// emptyRay.
+	// used[j] reports whether column j has a nonzero entry in some row;
+	// see emptyRays.
 	used []bool
-	// empty lists the rows without nonzero entries; see statusError.
+	// empty lists the rows without nonzero entries; see badEmptyRow.
 	empty []int
 }
 
@@ -50,9 +51,6 @@ var ErrClosed = errors.New("clp: model is closed")
 // not affect the model.
 func NewModel(p *lp.Problem) (*Model, error) {
 	if err := p.Validate(); err != nil {
-		return nil, fmt.Errorf("clp: %w", err)
-	}
-	if err := checkDuplicates(p.NumCols(), p.RowStart, p.Index); err != nil {
 		return nil, fmt.Errorf("clp: %w", err)
 	}
 	if p.NumNonzeros() > math.MaxInt32 || p.NumCols() > math.MaxInt32-1 || p.NumRows() > math.MaxInt32-1 {
@@ -217,6 +215,15 @@ func (m *Model) Solve(ctx context.Context) (*lp.Solution, error) {
 		}
 	}
 	C.Clp_setLogLevel(m.ptr, C.int(m.LogLevel))
+	ptol, dtol := m.PrimalTolerance, m.DualTolerance
+	if ptol <= 0 {
+		ptol = 1e-7
+	}
+	if dtol <= 0 {
+		dtol = 1e-7
+	}
+	C.Clp_setPrimalTolerance(m.ptr, C.double(ptol))
+	C.Clp_setDualTolerance(m.ptr, C.double(dtol))
 	if secs > 0 {
 		C.Clp_setMaximumSeconds(m.ptr, C.double(secs))
 	} else {
@@ -471,7 +478,8 @@ func checkRows(n int, r *Rows) error {
 }
 
 // checkDuplicates reports a column index repeated within a row; CLP does
-// not accept duplicate entries.
+// not accept duplicate entries. (lp.Problem.Validate makes the same check
+// for whole problems.)
 func checkDuplicates(n int, start []int, index []int32) error {
 	if len(start) < 2 {
 		return nil

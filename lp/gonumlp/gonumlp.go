@@ -152,7 +152,7 @@ func standardForm(p *lp.Problem) (*standard, error) {
 
 	// Rows are collected sparsely (structural columns are known now,
 	// slack columns are numbered as they are created) and made dense at
-	// the end.
+	// the end. Validate has ruled out repeated columns within a row.
 	type entry struct {
 		col int
 		val float64
@@ -163,7 +163,6 @@ func standardForm(p *lp.Problem) (*standard, error) {
 		sf.b = append(sf.b, rhs)
 		return len(rows) - 1
 	}
-	acc := make([]float64, nc)
 	for i := range p.NumRows() {
 		sf.rowOf[i] = -1
 		lo, up := p.RowLo[i], p.RowUp[i]
@@ -177,18 +176,11 @@ func standardForm(p *lp.Problem) (*standard, error) {
 			if v == 0 {
 				continue
 			}
-			if c.a < 0 {
-				constant += v * c.off
-				scale += math.Abs(v * c.off)
-				continue
-			}
 			constant += v * c.off
 			scale += math.Abs(v * c.off)
-			acc[c.a] += c.sign * v
-			e = append(e, entry{c.a, 0})
-		}
-		for k := range e {
-			e[k].val, acc[e[k].col] = acc[e[k].col], 0
+			if c.a >= 0 {
+				e = append(e, entry{c.a, c.sign * v})
+			}
 		}
 		lo -= constant
 		up -= constant
