@@ -8,6 +8,7 @@ import (
 	"fmt"
 	"io"
 	"math/big"
+	"os"
 	"strconv"
 	"strings"
 
@@ -77,6 +78,9 @@ instead; -o also writes the full result file for "pickwise verify" and
 	out := fs.String("o", "", "write the result file (JSON) to this path")
 	solverName := fs.String("solver", "clp", "LP backend: clp or gonum (pure Go, small models only)")
 	reach := fs.Int("reach", 0, "widen the grouping distance T by this many steps: a larger LP, an optimum no higher")
+	method := fs.String("method", "auto", "how to solve the LP: direct (every configuration), cg (constraint generation), or auto")
+	timeLimit := fs.Duration("time-limit", 0, "stop constraint generation after this long (e.g. 90s) and certify the best rule found")
+	quiet := fs.Bool("quiet", false, "no progress on standard error")
 	pos, st, done := a.parse(fs, args)
 	if done {
 		return st
@@ -96,7 +100,14 @@ instead; -o also writes the full result file for "pickwise verify" and
 	if *reach < 0 {
 		return a.fail(exitUsage, "--reach %d: must be >= 0", *reach)
 	}
-	sol, err := result.Solve(context.Background(), m, result.Options{Solver: solver, Reach: *reach})
+	opt := result.Options{Solver: solver, Reach: *reach, Method: *method, TimeLimit: *timeLimit}
+	if !*quiet && a.stderrIsTerminal() {
+		opt.Progress = a.progress
+	}
+	sol, err := result.Solve(context.Background(), m, opt)
+	if opt.Progress != nil && sol != nil && sol.Method == result.MethodCG {
+		fmt.Fprintln(a.stderr)
+	}
 	if err != nil {
 		return a.fail(solveStatus(err), "%s: %v", pos[0], err)
 	}
@@ -208,12 +219,20 @@ func writeSummary(w io.Writer, sol *result.Solution, timing bool) {
 		result.Float(lo), result.Float(up), u, result.Float(new(big.Rat).Sub(up, lo)))
 	fmt.Fprintf(w, "  lower bound: Bayes risk of a prior over %d configurations, valid for every rule\n", len(sol.Configs))
 	fmt.Fprintf(w, "  upper bound: worst case of the shipped tables (%d cells)\n", sol.Tables.NumCells())
+	if gap := result.Float(new(big.Rat).Sub(up, lo)); gap > 1e-9*result.Float(up) {
+		fmt.Fprintf(w, "  The bounds differ by more than round-off: the shipped tables are within %.3g%s of the best\n"+
+			"  possible rule. Tables that read channels further below the top group can do slightly better;\n"+
+			"  --reach K widens the grouping distance by K steps (now T = %d) and narrows the interval.\n", gap, u, l.T)
+	}
+	if !sol.Converged {
+		fmt.Fprintf(w, "  Constraint generation stopped at the time limit after %d rounds: the interval is certified but wider.\n", sol.Rounds)
+	}
 
-	fmt.Fprintf(w, "\nLP (%s): %d rows, %d columns, %d nonzeros", sol.Solver, sol.Rows, sol.Columns, sol.Nonzeros)
+	fmt.Fprintf(w, "\nLP (%s, %s): %d rows, %d columns, %d nonzeros", sol.Solver, methodText(sol), sol.Rows, sol.Columns, sol.Nonzeros)
 	if timing {
 		tm := sol.Timing
-		fmt.Fprintf(w, "; build %s, solve %s, certify %s, heuristics %s",
-			tm.Build.Round(1e6), tm.Solve.Round(1e6), tm.Certify.Round(1e6), tm.Heuristics.Round(1e6))
+		fmt.Fprintf(w, "; build %s, solve %s, polish %s, certify %s, heuristics %s",
+			tm.Build.Round(1e6), tm.Solve.Round(1e6), tm.Polish.Round(1e6), tm.Certify.Round(1e6), tm.Heuristics.Round(1e6))
 	}
 	fmt.Fprintf(w, "\n\n%s\n", caution)
 }
@@ -296,4 +315,27 @@ func writeSummaryJSON(w io.Writer, sol *result.Solution) error {
 	enc := json.NewEncoder(w)
 	enc.SetIndent("", "  ")
 	return enc.Encode(s)
+}
+
+func methodText(sol *result.Solution) string {
+	if sol.Method == result.MethodCG {
+		return fmt.Sprintf("constraint generation, %d rounds", sol.Rounds)
+	}
+	return "direct"
+}
+
+// stderrIsTerminal reports whether standard error is a terminal.
+func (a *app) stderrIsTerminal() bool {
+	f, ok := a.stderr.(*os.File)
+	if !ok {
+		return false
+	}
+	fi, err := f.Stat()
+	return err == nil && fi.Mode()&os.ModeCharDevice != 0
+}
+
+// progress prints one round of constraint generation on standard error.
+func (a *app) progress(p minimax.Progress) {
+	fmt.Fprintf(a.stderr, "\rround %d: %d configurations, LP %.9g, worst case of the rule %.9g (steps), %d above the LP, %s   ",
+		p.Round, p.Configs, p.LPValue, p.WorstCase, p.Violations, p.Elapsed.Round(1e7))
 }

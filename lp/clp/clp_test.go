@@ -99,9 +99,10 @@ func TestRandomDuality(t *testing.T) {
 		solver clp.Solver
 		check  float64
 	}{
-		{"default tolerances", clp.Solver{}, 1e-8},
+		{"default", clp.Solver{}, 1e-9},
 		{"tolerances 1e-10", clp.Solver{PrimalTolerance: 1e-10, DualTolerance: 1e-10}, 1e-10},
-		{"primal simplex", clp.Solver{Algorithm: clp.Primal}, 1e-8},
+		{"dual simplex", clp.Solver{Algorithm: clp.Dual}, 1e-8},
+		{"tolerances 1e-7", clp.Solver{PrimalTolerance: 1e-7, DualTolerance: 1e-7}, 1e-8},
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {

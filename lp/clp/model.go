@@ -217,10 +217,10 @@ func (m *Model) Solve(ctx context.Context) (*lp.Solution, error) {
 	C.Clp_setLogLevel(m.ptr, C.int(m.LogLevel))
 	ptol, dtol := m.PrimalTolerance, m.DualTolerance
 	if ptol <= 0 {
-		ptol = 1e-7
+		ptol = DefaultTolerance
 	}
 	if dtol <= 0 {
-		dtol = 1e-7
+		dtol = DefaultTolerance
 	}
 	C.Clp_setPrimalTolerance(m.ptr, C.double(ptol))
 	C.Clp_setDualTolerance(m.ptr, C.double(dtol))
@@ -234,7 +234,7 @@ func (m *Model) Solve(ctx context.Context) (*lp.Solution, error) {
 	if m.solved {
 		alg = Dual
 	}
-	if alg < Dual || alg > DualPresolve {
+	if alg < Primal || alg > DualPresolve {
 		return nil, fmt.Errorf("clp: unknown algorithm %d", int(alg))
 	}
 	defer runtime.KeepAlive(m)
@@ -261,7 +261,20 @@ func (m *Model) Solve(ctx context.Context) (*lp.Solution, error) {
 	}
 	m.solved = true
 	iterations := int(C.Clp_numberIterations(m.ptr))
-	if C.Clp_status(m.ptr) == 1 {
+	lastPrimal := alg == Primal
+	if C.Clp_status(m.ptr) == 4 {
+		// Stopped on errors: the other simplex method, from the basis
+		// reached, often gets through. (The primal simplex stops so on
+		// some infeasible problems that the dual simplex recognises.)
+		if lastPrimal {
+			C.Clp_dual(m.ptr, 0)
+		} else {
+			C.Clp_primal(m.ptr, 0)
+		}
+		lastPrimal = !lastPrimal
+		iterations += int(C.Clp_numberIterations(m.ptr))
+	}
+	if C.Clp_status(m.ptr) == 1 && !lastPrimal {
 		// The dual simplex (and the drivers built on it) can call an
 		// unbounded problem with free columns primal infeasible after
 		// 0 iterations (seen on random LPs, against GLPK). The primal
@@ -277,20 +290,26 @@ func (m *Model) Solve(ctx context.Context) (*lp.Solution, error) {
 		}
 	}
 	if C.Clp_status(m.ptr) == 0 {
-		// Clean up with the primal simplex from the final basis. The
-		// dual simplex works with artificial bounds of 1e10 on columns
-		// with an infinite bound, and the solution it leaves can carry
-		// their round-off: 6e-6 in the objective on a 5-row problem with
-		// free columns, where this clean-up recomputed the exact optimum
-		// in 0 iterations. The time limit, which may have run out just
-		// as the main solve ended, does not apply to it.
+		// Neither clean-up below is bound by the time limit, which may
+		// have run out just as the main solve ended.
 		C.Clp_setMaximumSeconds(m.ptr, -1)
-		C.Clp_primal(m.ptr, 0)
-		iterations += int(C.Clp_numberIterations(m.ptr))
+		if !lastPrimal {
+			// Clean up with the primal simplex from the final basis.
+			// The dual simplex works with artificial bounds of 1e10 on
+			// columns with an infinite bound, and the solution it
+			// leaves can carry their round-off: 6e-6 in the objective
+			// on a 5-row problem with free columns, where this
+			// clean-up recomputed the exact optimum in 0 iterations.
+			C.Clp_primal(m.ptr, 0)
+			iterations += int(C.Clp_numberIterations(m.ptr))
+		}
 		if sec := C.Clp_secondaryStatus(m.ptr); sec >= 2 && sec <= 4 {
-			// Optimal only for the scaled problem. On random LPs this
-			// was seen on problems that are in fact unbounded; the
-			// primal simplex without scaling settles it.
+			// Optimal only for the scaled problem: the unscaled one
+			// has infeasibilities above the tolerances. This happens
+			// on regret LPs, whose coefficients span many orders of
+			// magnitude, and on random LPs it marked problems that are
+			// in fact unbounded. The primal simplex without scaling
+			// settles it.
 			scaling := C.Clp_scalingFlag(m.ptr)
 			C.Clp_scaling(m.ptr, 0)
 			C.Clp_primal(m.ptr, 0)

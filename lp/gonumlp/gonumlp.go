@@ -40,6 +40,9 @@ type Solver struct {
 	// Tol is the tolerance on reduced costs at which gonum's simplex stops;
 	// 0 means 1e-10.
 	Tol float64
+	// NoDuals skips the second solve that computes the row duals;
+	// Solution.RowDual is then nil.
+	NoDuals bool
 }
 
 var _ lp.Solver = Solver{}
@@ -82,12 +85,17 @@ func (s Solver) Solve(ctx context.Context, p *lp.Problem) (*lp.Solution, error) 
 	if err := ctx.Err(); err != nil {
 		return nil, fmt.Errorf("gonum: %w", err)
 	}
-	y, err := dualValues(sf, rows, tol)
-	if err != nil {
-		return nil, err
+	var y []float64
+	if !s.NoDuals {
+		if y, err = dualValues(sf, rows, tol); err != nil {
+			return nil, err
+		}
 	}
 
-	sol := &lp.Solution{X: make([]float64, p.NumCols()), RowDual: make([]float64, p.NumRows())}
+	sol := &lp.Solution{X: make([]float64, p.NumCols())}
+	if y != nil {
+		sol.RowDual = make([]float64, p.NumRows())
+	}
 	for j, c := range sf.cols {
 		if c.a < 0 {
 			sol.X[j] = c.off
@@ -97,7 +105,7 @@ func (s Solver) Solve(ctx context.Context, p *lp.Problem) (*lp.Solution, error) 
 		sol.Objective += p.Obj[j] * sol.X[j]
 	}
 	for i, k := range sf.rowOf {
-		if k >= 0 {
+		if k >= 0 && y != nil {
 			sol.RowDual[i] = y[k]
 		}
 	}

@@ -1,6 +1,7 @@
 // Package minimax builds the finite linear program whose optimum is the
-// minimax regret of a lattice model (design notes, step 5), and turns a
-// solution back into decision tables and a prior.
+// minimax regret of a lattice model over rules that use the readings of the
+// top group (design notes, step 5), and turns a solution back into decision
+// tables and a prior.
 //
 // Variables are t (the worst-case regret, in steps) and x[A, cell, i], the
 // probability that the table of group A picks channel i in a cell. Rows are
@@ -10,6 +11,10 @@
 //
 // where c(v) collects the outcomes whose choice is forced, and one row
 // sum_i x[A, cell, i] = 1 per cell.
+//
+// Build writes every configuration's row at once (the direct LP). SolveCG
+// generates rows only for the configurations that bind (constraint
+// generation), checking all the others with the fast evaluator.
 package minimax
 
 import (
@@ -25,7 +30,7 @@ import (
 type Var struct {
 	Group   tables.Set
 	Cell    int32 // index in the group's table
-	Channel int8
+	Channel int8  // position of the channel among the group's members
 }
 
 // Formulation is the linear program of a model with the bookkeeping needed
@@ -36,14 +41,20 @@ type Formulation struct {
 	// Vars describes column j+1 (column 0 is t).
 	Vars []Var
 	// Configs holds the configuration of each regret row, n values per
-	// row (Far for channels outside the subset), row-major.
+	// row (Far for channels outside the subset), row-major; RowOf[k] is
+	// the LP row of configuration k.
 	Configs []int
-	// RegretRows is the number of regret rows; they come first, followed
-	// by one row per table cell with at least two alive channels.
-	RegretRows int
+	RowOf   []int
 	// Tables is the table rule whose cells the columns refer to; its
 	// probabilities are uniform until Apply is called.
 	Tables *tables.Optimal
+
+	colOf map[tables.Set][]int32 // first column of each cell, per group
+	// scratch for rows
+	acc     []float64
+	touched []int
+	r       []int
+	order   []int
 }
 
 // Options bound the size of a formulation.
@@ -65,7 +76,7 @@ func (e *SizeError) Error() string {
 }
 
 // Estimate returns estimates of the number of regret rows and nonzeros of
-// the LP of layout l, without building it.
+// the direct LP of layout l, without building it.
 func Estimate(l *tables.Layout) (rows, nonzeros float64) {
 	n := l.N()
 	for _, q := range tables.Subsets(n) {
@@ -97,7 +108,110 @@ func factorial(m int) float64 {
 	return f
 }
 
-// Build returns the LP of layout l.
+// newFormulation returns a formulation with column t and no cells.
+func newFormulation(l *tables.Layout) *Formulation {
+	n := l.N()
+	f := &Formulation{Layout: l, Problem: &lp.Problem{}, Tables: tables.NewOptimal(l),
+		colOf: make(map[tables.Set][]int32), r: make([]int, n), order: make([]int, n)}
+	f.Problem.AddCol(1, 0, math.Inf(1)) // t
+	return f
+}
+
+// addCell adds the cell of readings r to group g's table with one column
+// per alive channel, and returns its index.
+func (f *Formulation) addCell(g, alive tables.Set, r []int) int {
+	t := f.Tables.Table(g)
+	ci := t.Add(r, alive, nil)
+	p := f.Problem
+	f.colOf[g] = append(f.colOf[g], int32(p.NumCols()))
+	for k, ch := range t.Members {
+		if alive.Has(ch) {
+			p.AddCol(0, 0, math.Inf(1))
+			f.Vars = append(f.Vars, Var{Group: g, Cell: int32(ci), Channel: int8(k)})
+		}
+	}
+	for len(f.acc) < p.NumCols() {
+		f.acc = append(f.acc, 0)
+	}
+	return ci
+}
+
+// regretRow returns the regret row of configuration v (without the -t
+// entry): column indices in increasing order, coefficients, and the
+// constant of the forced outcomes. Cells met for the first time are added
+// when create is set; otherwise a missing cell is an error.
+func (f *Formulation) regretRow(v []int, create bool, idx []int, val []float64) ([]int, []float64, float64, error) {
+	l := f.Layout
+	n := l.N()
+	var q tables.Set
+	top := tables.Far
+	for i, x := range v {
+		if x > tables.Far/2 {
+			q |= 1 << uint(i)
+			top = max(top, x)
+		}
+	}
+	var forced float64
+	var err error
+	r := f.r
+	l.Outcomes(q, func(a []int, prob float64) {
+		if err != nil {
+			return
+		}
+		for i := range r {
+			r[i] = v[i] + a[i]
+		}
+		g := l.TopGroup(r, f.order)
+		alive := g
+		if g.Len() > 1 {
+			alive = l.Alive(g, r)
+		}
+		if alive.Len() == 1 {
+			for i := 0; i < n; i++ {
+				if alive.Has(i) {
+					forced += prob * float64(top-v[i])
+				}
+			}
+			return
+		}
+		t := f.Tables.Table(g)
+		ci := t.Lookup(r)
+		if ci < 0 {
+			if !create {
+				err = fmt.Errorf("minimax: configuration %v reaches a cell of group %v that has no column", v, t.Members)
+				return
+			}
+			ci = f.addCell(g, alive, r)
+		}
+		col := int(f.colOf[g][ci])
+		for _, ch := range t.Members {
+			if !alive.Has(ch) {
+				continue
+			}
+			if d := top - v[ch]; d != 0 {
+				if f.acc[col] == 0 {
+					f.touched = append(f.touched, col)
+				}
+				f.acc[col] += prob * float64(d)
+			}
+			col++
+		}
+	})
+	sort.Ints(f.touched)
+	idx, val = idx[:0], val[:0]
+	for _, c := range f.touched {
+		if f.acc[c] != 0 {
+			idx = append(idx, c)
+			val = append(val, f.acc[c])
+		}
+		f.acc[c] = 0
+	}
+	f.touched = f.touched[:0]
+	return idx, val, forced, err
+}
+
+// Build returns the direct LP of layout l: a regret row for every
+// configuration.
 func Build(l *tables.Layout, opt Options) (*Formulation, error) {
 	rows, nz := Estimate(l)
 	limit := opt.MaxNonzeros
@@ -108,95 +222,38 @@ func Build(l *tables.Layout, opt Options) (*Formulation, error) {
 		return nil, &SizeError{Rows: rows, Nonzeros: nz, Bytes: nz * 40}
 	}
 	n := l.N()
-	f := &Formulation{Layout: l, Problem: &lp.Problem{}, Tables: tables.NewOptimal(l)}
+	f := newFormulation(l)
 	p := f.Problem
-	p.AddCol(1, 0, math.Inf(1)) // t
-	// colOf[group] maps a cell index to its first column; channels of a
-	// cell's alive set get consecutive columns in member order.
-	colOf := make(map[tables.Set][]int32)
-	var (
-		acc     []float64 // coefficient per column for the current row
-		touched []int
-		r       = make([]int, n)
-		order   = make([]int, n)
-		idx     []int
-		val     []float64
-	)
+	var idx []int
+	var val []float64
+	var err error
 	for _, q := range tables.Subsets(n) {
 		tables.Configurations(n, q, l.D, func(v []int) bool {
-			top := tables.Far
-			for _, x := range v {
-				if x > top {
-					top = x
-				}
-			}
 			var forced float64
-			l.Outcomes(q, func(a []int, prob float64) {
-				for i := range r {
-					r[i] = v[i] + a[i]
-				}
-				g := l.TopGroup(r, order)
-				alive := g
-				if g.Len() > 1 {
-					alive = l.Alive(g, r)
-				}
-				if alive.Len() == 1 {
-					for i := 0; i < n; i++ {
-						if alive.Has(i) {
-							forced += prob * float64(top-v[i])
-						}
-					}
-					return
-				}
-				t := f.Tables.Table(g)
-				ci := t.Lookup(r)
-				if ci < 0 {
-					ci = t.Add(r, alive, nil)
-					first := int32(p.NumCols())
-					colOf[g] = append(colOf[g], first)
-					for k, ch := range t.Members {
-						if alive.Has(ch) {
-							p.AddCol(0, 0, math.Inf(1))
-							f.Vars = append(f.Vars, Var{Group: g, Cell: int32(ci), Channel: int8(k)})
-						}
-					}
-					for len(acc) < p.NumCols() {
-						acc = append(acc, 0)
-					}
-				}
-				col := int(colOf[g][ci])
-				for _, ch := range t.Members {
-					if !alive.Has(ch) {
-						continue
-					}
-					if d := top - v[ch]; d != 0 {
-						if acc[col] == 0 {
-							touched = append(touched, col)
-						}
-						acc[col] += prob * float64(d)
-					}
-					col++
-				}
-			})
-			sort.Ints(touched)
-			idx, val = idx[:0], val[:0]
-			for _, c := range touched {
-				if acc[c] != 0 {
-					idx = append(idx, c)
-					val = append(val, acc[c])
-				}
-				acc[c] = 0
+			idx, val, forced, err = f.regretRow(v, true, idx, val)
+			if err != nil {
+				return false
 			}
-			touched = touched[:0]
 			idx = append(idx, 0)
 			val = append(val, -1)
-			p.AddRow(idx, val, math.Inf(-1), -forced)
+			f.RowOf = append(f.RowOf, p.AddRow(idx, val, math.Inf(-1), -forced))
 			f.Configs = append(f.Configs, v...)
 			return true
 		})
+		if err != nil {
+			return nil, err
+		}
 	}
-	f.RegretRows = p.NumRows()
-	// One row per cell: the probabilities of its alive channels sum to 1.
+	f.addCellRows()
+	return f, nil
+}
+
+// addCellRows appends one row per cell: the probabilities of its alive
+// channels sum to 1.
+func (f *Formulation) addCellRows() {
+	p := f.Problem
+	var idx []int
+	var val []float64
 	for j := 1; j < p.NumCols(); {
 		v := f.Vars[j-1]
 		k := j
@@ -209,7 +266,6 @@ func Build(l *tables.Layout, opt Options) (*Formulation, error) {
 		p.AddRow(idx, val, 1, 1)
 		j = k
 	}
-	return f, nil
 }
 
 // Apply copies the probabilities of solution x into the formulation's
@@ -236,25 +292,31 @@ func (f *Formulation) Apply(x []float64) {
 	}
 }
 
-// Config returns the configuration of regret row i (n values, Far outside
-// its subset).
-func (f *Formulation) Config(i int) []int {
+// NumConfigs returns the number of configurations with a regret row.
+func (f *Formulation) NumConfigs() int { return len(f.RowOf) }
+
+// Config returns configuration k (n values, Far outside its subset).
+func (f *Formulation) Config(k int) []int {
 	n := f.Layout.N()
-	return f.Configs[i*n : (i+1)*n]
+	return f.Configs[k*n : (k+1)*n]
 }
 
 // Prior returns the prior over configurations given by the duals of the
-// regret rows: the negated duals, clipped at 0 and normalised to sum to 1.
-// It returns nil when the duals are missing or all zero.
+// regret rows: the negated duals, clipped at 0 and normalised to sum to 1,
+// one weight per configuration. It returns nil when the duals are missing
+// or all zero.
 func (f *Formulation) Prior(dual []float64) []float64 {
-	if len(dual) < f.RegretRows {
+	if dual == nil {
 		return nil
 	}
-	w := make([]float64, f.RegretRows)
+	w := make([]float64, len(f.RowOf))
 	var s float64
-	for i := range w {
-		w[i] = math.Max(-dual[i], 0)
-		s += w[i]
+	for k, row := range f.RowOf {
+		if row >= len(dual) {
+			return nil
+		}
+		w[k] = math.Max(-dual[row], 0)
+		s += w[k]
 	}
 	if s == 0 {
 		return nil

@@ -104,7 +104,8 @@ func NewTable(o *tables.Optimal, bits uint) (*Table, error) {
 }
 
 // NewTableDen reads the probabilities of o as fractions q/den, q the
-// integer nearest to p*den, which must lie within 1e-6 of it; each cell's
+// integer nearest to p*den, which must lie within 1e-6 of it (plus the
+// float64 round-off of q/den, for large den); each cell's
 // numerators must be zero outside the alive set and sum to den. Use it for
 // tables rounded to a decimal or other non-binary denominator, such as a
 // printed procedure's "draw 1 to 100".
@@ -146,7 +147,7 @@ func (t *Table) numerator(p float64, strict bool) (uint64, bool) {
 	}
 	x := p * float64(t.Denom)
 	q := math.Round(x)
-	if strict && x != q || math.Abs(x-q) > 1e-6 {
+	if strict && x != q || math.Abs(x-q) > 1e-6+4e-16*float64(t.Denom) {
 		return 0, false
 	}
 	return uint64(q), true
@@ -187,7 +188,7 @@ func Snap(o *tables.Optimal, bits uint) *tables.Optimal {
 				if !c.Alive.Has(t.Members[i]) || !(p > 0) {
 					continue
 				}
-				q[i] = int64(math.Round(math.Min(p, 1) * float64(den)))
+				q[i] = snapOne(math.Min(p, 1), bits)
 				s += q[i]
 				if big < 0 || q[i] > q[big] {
 					big = i
@@ -216,6 +217,19 @@ func Snap(o *tables.Optimal, bits uint) *tables.Optimal {
 		}
 	}
 	return out
+}
+
+// snapOne returns p rounded to a multiple of 2^-bits, preferring the
+// coarsest multiple of 2^-k (k <= bits) within 1e-12 of p, so that a
+// probability the LP found as 0.49999999999999994 ships as exactly 1/2.
+func snapOne(p float64, bits uint) int64 {
+	for k := uint(0); k < bits; k++ {
+		x := math.Round(math.Ldexp(p, int(k)))
+		if math.Abs(math.Ldexp(x, -int(k))-p) <= 1e-12 {
+			return int64(x) << (bits - k)
+		}
+	}
+	return int64(math.Round(math.Ldexp(p, int(bits))))
 }
 
 // Worst is an exact worst case.

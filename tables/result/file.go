@@ -5,6 +5,7 @@ import (
 	"encoding/json"
 	"fmt"
 	"io"
+	"math"
 	"math/big"
 	"os"
 	"path/filepath"
@@ -33,8 +34,9 @@ type File struct {
 	// pmfs and compares.
 	Layout FileLayout `json:"layout"`
 	LP     FileLP     `json:"lp"`
-	// ProbBits: table probabilities and prior weights are multiples of
-	// 2^-prob_bits.
+	// TableDen: every table probability is an integer over table_den.
+	TableDen uint64 `json:"table_den"`
+	// ProbBits: prior weights are multiples of 2^-prob_bits.
 	ProbBits    uint            `json:"prob_bits"`
 	Tables      []FileTable     `json:"tables"`
 	Prior       []FilePrior     `json:"prior"`
@@ -63,6 +65,8 @@ type FileLayout struct {
 // FileLP describes the LP that was solved.
 type FileLP struct {
 	Solver    string  `json:"solver"`
+	Method    string  `json:"method"`    // direct or cg (constraint generation)
+	Converged bool    `json:"converged"` // false when constraint generation stopped early
 	Rows      int     `json:"rows"`
 	Columns   int     `json:"columns"`
 	Nonzeros  int     `json:"nonzeros"`
@@ -159,8 +163,9 @@ func NewFile(s *Solution, modelTOML string) *File {
 		Unit:      m.Unit,
 		Tail:      m.Tail,
 		Layout:    FileLayout{G: l.G, S: l.S, T: l.T, D: l.D},
-		LP: FileLP{Solver: s.Solver, Rows: s.Rows, Columns: s.Columns, Nonzeros: s.Nonzeros,
+		LP: FileLP{Solver: s.Solver, Method: s.Method, Converged: s.Converged, Rows: s.Rows, Columns: s.Columns, Nonzeros: s.Nonzeros,
 			Objective: s.Objective * m.Step},
+		TableDen: s.TableDen,
 		ProbBits: s.ProbBits,
 	}
 	for _, c := range m.Channels {
@@ -181,7 +186,8 @@ func NewFile(s *Solution, modelTOML string) *File {
 		for _, c := range t.Cells {
 			fc := FileCell{Diff: append([]int(nil), c.Diff...)}
 			for _, p := range c.P {
-				fc.P = append(fc.P, new(big.Rat).SetFloat64(p).RatString())
+				q := int64(math.Round(p * float64(s.TableDen)))
+				fc.P = append(fc.P, new(big.Rat).SetFrac64(q, int64(s.TableDen)).RatString())
 			}
 			ft.Cells = append(ft.Cells, fc)
 		}

@@ -13,6 +13,7 @@ package result
 import (
 	"context"
 	"fmt"
+	"math"
 	"math/big"
 	"strconv"
 	"time"
@@ -40,6 +41,20 @@ type Options struct {
 	// Reach widens the grouping distance T by this many steps (see
 	// tables.Layout.Widen): a larger LP whose optimum is no higher.
 	Reach int
+	// Method is MethodAuto (the zero value), MethodDirect or MethodCG.
+	Method string
+	// TimeLimit, when positive, stops constraint generation after the
+	// round that passes it; the result is certified all the same, with a
+	// wider interval.
+	TimeLimit time.Duration
+	// Progress, when not nil, is called after each round of constraint
+	// generation.
+	Progress func(minimax.Progress)
+	// NoPolish skips the second solve that, among the rules whose worst
+	// case is the optimum, picks one with the smallest total regret over
+	// all configurations. Polishing makes tables monotone and decisive
+	// where the worst case leaves them free, and costs a second LP solve.
+	NoPolish bool
 }
 
 // Figure is the exact worst-case regret of a rule.
@@ -53,7 +68,7 @@ type Figure struct {
 
 // Timing records where the time of a solve went.
 type Timing struct {
-	Build, Solve, Certify, Heuristics time.Duration
+	Build, Solve, Polish, Certify, Heuristics time.Duration
 }
 
 // Solution is everything Solve computes.
@@ -63,14 +78,20 @@ type Solution struct {
 
 	// LP size and outcome.
 	Solver                  string
+	Method                  string // direct or cg
+	Converged               bool   // false when constraint generation stopped early
+	Rounds                  int    // rounds of constraint generation
 	Rows, Columns, Nonzeros int
 	Objective               float64 // LP optimum, in steps
 	Iterations              int
 
-	// Tables is the shipped optimal rule: probabilities are multiples of
-	// 2^-ProbBits summing to exactly 1 in every cell.
+	// Tables is the shipped optimal rule: probabilities are integers over
+	// TableDen summing to exactly 1 in every cell.
 	Tables *tables.Optimal
-	// ProbBits is the binary precision of Tables and Weights.
+	// TableDen is the common denominator of the probabilities of Tables:
+	// each is an integer over TableDen (see exact.Rationalize).
+	TableDen uint64
+	// ProbBits is the binary precision of the prior weights.
 	ProbBits uint
 
 	// Prior is the least-favourable prior read from the duals: Configs[k]
@@ -91,6 +112,18 @@ type Solution struct {
 	Timing Timing
 }
 
+// Methods of solving the LP.
+const (
+	// MethodAuto uses the direct LP when its estimated size is small
+	// (at most 2e6 nonzeros) and constraint generation otherwise.
+	MethodAuto = "auto"
+	// MethodDirect writes a row for every configuration.
+	MethodDirect = "direct"
+	// MethodCG generates rows for the binding configurations only; it
+	// needs CLP.
+	MethodCG = "cg"
+)
+
 // Solve computes the certified optimal rule of m and the exact figures of
 // the greedy and offset rules.
 func Solve(ctx context.Context, m *discretize.Model, opt Options) (*Solution, error) {
@@ -103,32 +136,74 @@ func Solve(ctx context.Context, m *discretize.Model, opt Options) (*Solution, er
 	}
 	solver := opt.Solver
 	if solver == nil {
-		solver = clp.Solver{}
+		solver = clp.Solver{PrimalTolerance: tolerance, DualTolerance: tolerance}
 	}
-	s := &Solution{Model: m, Layout: l, Solver: solver.Name(), ProbBits: ProbBits}
+	method := opt.Method
+	if method == "" || method == MethodAuto {
+		method = MethodDirect
+		if _, nz := minimax.Estimate(l); nz > 2e6 {
+			method = MethodCG
+		}
+	}
+	s := &Solution{Model: m, Layout: l, Solver: solver.Name(), Method: method, ProbBits: ProbBits, Converged: true}
 
+	var f *minimax.Formulation
+	var sol *lp.Solution
 	t0 := time.Now()
-	f, err := minimax.Build(l, minimax.Options{MaxNonzeros: opt.MaxNonzeros})
-	if err != nil {
-		return nil, err
-	}
-	s.Rows, s.Columns, s.Nonzeros = f.Problem.NumRows(), f.Problem.NumCols(), f.Problem.NumNonzeros()
-	t1 := time.Now()
-	sol, err := solver.Solve(ctx, f.Problem)
-	if err != nil {
-		return nil, fmt.Errorf("solving the LP (%d rows, %d columns, %d nonzeros): %w", s.Rows, s.Columns, s.Nonzeros, err)
+	switch method {
+	case MethodDirect:
+		f, err = minimax.Build(l, minimax.Options{MaxNonzeros: opt.MaxNonzeros})
+		if err != nil {
+			return nil, err
+		}
+		s.Rows, s.Columns, s.Nonzeros = f.Problem.NumRows(), f.Problem.NumCols(), f.Problem.NumNonzeros()
+		t1 := time.Now()
+		s.Timing.Build = t1.Sub(t0)
+		sol, err = solver.Solve(ctx, f.Problem)
+		if err != nil {
+			return nil, fmt.Errorf("solving the LP (%d rows, %d columns, %d nonzeros): %w", s.Rows, s.Columns, s.Nonzeros, err)
+		}
+		s.Timing.Solve = time.Since(t1)
+		f.Apply(sol.X)
+		if !opt.NoPolish {
+			t2 := time.Now()
+			if x, err := polish(ctx, solver, f, sol.Objective); err == nil {
+				f.Apply(x)
+			}
+			// A failed polish leaves the first solution, which is optimal.
+			s.Timing.Polish = time.Since(t2)
+		}
+	case MethodCG:
+		if solver.Name() != "clp" {
+			return nil, fmt.Errorf("constraint generation needs the clp backend, not %s", solver.Name())
+		}
+		cg := minimax.CGOptions{Progress: opt.Progress}
+		if opt.TimeLimit > 0 {
+			cg.Deadline = t0.Add(opt.TimeLimit)
+		}
+		res, err := minimax.SolveCG(ctx, l, newCLPIncremental(tolerance), cg)
+		if err != nil {
+			return nil, err
+		}
+		f, sol = res.F, res.Solution
+		s.Converged, s.Rounds = res.Converged, res.Rounds
+		s.Rows, s.Columns, s.Nonzeros = f.Problem.NumRows(), f.Problem.NumCols(), f.Problem.NumNonzeros()
+		s.Timing.Solve = time.Since(t0)
+	default:
+		return nil, fmt.Errorf("unknown method %q (want auto, direct or cg)", method)
 	}
 	s.Objective, s.Iterations = sol.Objective, sol.Iterations
-	t2 := time.Now()
-	s.Timing.Build, s.Timing.Solve = t1.Sub(t0), t2.Sub(t1)
 
-	f.Apply(sol.X)
-	s.Tables = exact.Snap(f.Tables, ProbBits)
-	et, err := exact.NewTable(s.Tables, ProbBits)
+	t2 := time.Now()
+	s.Tables, s.TableDen = exact.Rationalize(f.Tables, ProbBits)
+	et, err := exact.NewTableDen(s.Tables, s.TableDen)
 	if err != nil {
 		return nil, fmt.Errorf("snapped table: %w", err)
 	}
-	up := exact.WorstCase(l, et, l.D)
+	up, err := exact.WorstCaseScreened(l, et, l.D)
+	if err != nil {
+		return nil, err
+	}
 	s.Upper = up.Regret
 	s.Optimal = Figure{Regret: up.Regret, Worst: up.Values}
 
@@ -153,11 +228,9 @@ func Solve(ctx context.Context, m *discretize.Model, opt Options) (*Solution, er
 	t3 := time.Now()
 	s.Timing.Certify = t3.Sub(t2)
 
-	g := exact.WorstCase(l, exact.Greedy(l.N()), l.D+GreedyWidth(l))
-	s.Greedy = Figure{Regret: g.Regret, Worst: g.Values}
-	s.OffsetHalf = l.OffsetHalfSteps()
-	o := exact.WorstCase(l, exact.Offset(s.OffsetHalf), l.D+tables.OffsetWidth(s.OffsetHalf))
-	s.Offset = Figure{Regret: o.Regret, Worst: o.Values}
+	if s.Greedy, s.OffsetHalf, s.Offset, err = heuristics(l); err != nil {
+		return nil, err
+	}
 	s.Timing.Heuristics = time.Since(t3)
 	return s, nil
 }
@@ -204,4 +277,58 @@ func lowerBound(l *tables.Layout, configs [][]int, w []uint64, bits uint) (*big.
 		return new(big.Rat), nil
 	}
 	return exact.BayesRisk(l, configs, w, bits)
+}
+
+// polish re-solves the LP of f with the worst case held at the optimum t
+// (plus a relative 1e-12) and the total regret over all configurations as
+// the objective, and returns the new solution's columns.
+func polish(ctx context.Context, solver lp.Solver, f *minimax.Formulation, t float64) ([]float64, error) {
+	p := *f.Problem
+	p.Obj = make([]float64, len(f.Problem.Obj))
+	p.ColUp = append([]float64(nil), f.Problem.ColUp...)
+	p.ColUp[0] = t*(1+1e-12) + 1e-15
+	for _, row := range f.RowOf {
+		for e := p.RowStart[row]; e < p.RowStart[row+1]; e++ {
+			if j := p.Index[e]; j != 0 {
+				p.Obj[j] += p.Value[e]
+			}
+		}
+	}
+	// Normalise the objective so that tolerances mean the same on every
+	// model.
+	var big float64
+	for _, c := range p.Obj {
+		big = math.Max(big, math.Abs(c))
+	}
+	if big > 0 {
+		for j := range p.Obj {
+			p.Obj[j] /= big
+		}
+	}
+	sol, err := solver.Solve(ctx, &p)
+	if err != nil {
+		return nil, err
+	}
+	return sol.X, nil
+}
+
+// tolerance is the primal and dual feasibility tolerance of CLP solves:
+// tighter than CLP's default of 1e-7, so that the LP optimum, the table
+// and the prior are accurate well beyond the certificate's 1e-9.
+const tolerance = 1e-9
+
+// heuristics returns the exact figures of greedy and of the offset rule.
+func heuristics(l *tables.Layout) (greedy Figure, half []int, offset Figure, err error) {
+	g, err := exact.WorstCaseScreened(l, exact.Greedy(l.N()), l.D+GreedyWidth(l))
+	if err != nil {
+		return
+	}
+	greedy = Figure{Regret: g.Regret, Worst: g.Values}
+	half = l.OffsetHalfSteps()
+	o, err := exact.WorstCaseScreened(l, exact.Offset(half), l.D+tables.OffsetWidth(half))
+	if err != nil {
+		return
+	}
+	offset = Figure{Regret: o.Regret, Worst: o.Values}
+	return
 }

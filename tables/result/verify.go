@@ -2,7 +2,6 @@ package result
 
 import (
 	"fmt"
-	"math"
 	"math/big"
 	"strconv"
 
@@ -33,8 +32,25 @@ type Report struct {
 	Configurations                 int
 }
 
-// parseRat parses a fraction and checks that it is a multiple of 2^-bits in
-// [0, 1]; it returns the numerator over 2^bits.
+// parseOver parses a fraction and checks that it is a multiple of 1/den in
+// [0, 1]; it returns the numerator over den.
+func parseOver(s string, den uint64) (uint64, error) {
+	r, ok := new(big.Rat).SetString(s)
+	if !ok {
+		return 0, fmt.Errorf("%q is not a fraction", s)
+	}
+	if r.Sign() < 0 || r.Cmp(big.NewRat(1, 1)) > 0 {
+		return 0, fmt.Errorf("%s is outside [0, 1]", s)
+	}
+	x := new(big.Rat).Mul(r, new(big.Rat).SetInt(new(big.Int).SetUint64(den)))
+	if !x.IsInt() {
+		return 0, fmt.Errorf("%s is not a multiple of 1/%d", s, den)
+	}
+	return x.Num().Uint64(), nil
+}
+
+// parseDyadic parses a fraction and checks that it is a multiple of
+// 2^-bits in [0, 1]; it returns the numerator over 2^bits.
 func parseDyadic(s string, bits uint) (uint64, error) {
 	r, ok := new(big.Rat).SetString(s)
 	if !ok {
@@ -107,7 +123,10 @@ func (f *File) Solution() (*Solution, error) {
 	if bits == 0 || bits > 62 {
 		return nil, mismatch("prob_bits", "%d is not in [1, 62]", bits)
 	}
-	s := &Solution{Model: m, Layout: l, Solver: f.LP.Solver, Rows: f.LP.Rows, Columns: f.LP.Columns,
+	if f.TableDen == 0 || f.TableDen > 1<<52 {
+		return nil, mismatch("table_den", "%d is not in [1, 2^52]", f.TableDen)
+	}
+	s := &Solution{Model: m, Layout: l, TableDen: f.TableDen, Solver: f.LP.Solver, Method: f.LP.Method, Converged: f.LP.Converged, Rows: f.LP.Rows, Columns: f.LP.Columns,
 		Nonzeros: f.LP.Nonzeros, Objective: f.LP.Objective / m.Step, ProbBits: bits}
 
 	// Tables.
@@ -154,7 +173,7 @@ func (f *File) Solution() (*Solution, error) {
 			p := make([]float64, len(t.Members))
 			var sum uint64
 			for k, str := range fc.P {
-				x, err := parseDyadic(str, bits)
+				x, err := parseOver(str, f.TableDen)
 				if err != nil {
 					return nil, mismatch(what, "probability of channel %q: %v", m.Channels[t.Members[k]].Name, err)
 				}
@@ -162,10 +181,10 @@ func (f *File) Solution() (*Solution, error) {
 					return nil, mismatch(what, "channel %q is certainly below another but has probability %s", m.Channels[t.Members[k]].Name, str)
 				}
 				sum += x
-				p[k] = math.Ldexp(float64(x), -int(bits))
+				p[k] = float64(x) / float64(f.TableDen)
 			}
-			if sum != 1<<bits {
-				return nil, mismatch(what, "probabilities sum to %s, not 1", ratString(sum, bits))
+			if sum != f.TableDen {
+				return nil, mismatch(what, "probabilities sum to %s, not 1", new(big.Rat).SetFrac(new(big.Int).SetUint64(sum), new(big.Int).SetUint64(f.TableDen)).RatString())
 			}
 			t.Add(r, alive, p)
 		}
@@ -234,13 +253,16 @@ func Verify(f *File) (*Report, error) {
 			rep.Cells += len(t.Cells)
 		}
 	}
-	et, err := exact.NewTable(s.Tables, s.ProbBits)
+	et, err := exact.NewTableDen(s.Tables, s.TableDen)
 	if err != nil {
 		return nil, mismatch("tables", "%v", err)
 	}
 
 	// Upper bound: the exact worst case of the tables as written.
-	up := exact.WorstCase(l, et, l.D)
+	up, err := exact.WorstCaseScreened(l, et, l.D)
+	if err != nil {
+		return nil, err
+	}
 	upU := new(big.Rat).Mul(up.Regret, stepRat)
 	if err := sameRat("upper bound", f.Certificate.Upper, upU, up.Values); err != nil {
 		return nil, err
@@ -262,19 +284,20 @@ func Verify(f *File) (*Report, error) {
 	}
 
 	// Heuristics.
-	g := exact.WorstCase(l, exact.Greedy(l.N()), l.D+GreedyWidth(l))
-	gU := new(big.Rat).Mul(g.Regret, stepRat)
-	if err := sameRat("greedy worst-case regret", f.Greedy.Regret, gU, g.Values); err != nil {
+	gr, half, of, err := heuristics(l)
+	if err != nil {
+		return nil, err
+	}
+	gU := new(big.Rat).Mul(gr.Regret, stepRat)
+	if err := sameRat("greedy worst-case regret", f.Greedy.Regret, gU, gr.Worst); err != nil {
 		return nil, err
 	}
 	rep.Greedy = gU
-	half := l.OffsetHalfSteps()
 	if fmt.Sprint(half) != fmt.Sprint(f.Offset.HalfSteps) {
 		return nil, mismatch("offsets", "stated %v half steps, the pmfs give %v", f.Offset.HalfSteps, half)
 	}
-	of := exact.WorstCase(l, exact.Offset(half), l.D+tables.OffsetWidth(half))
 	oU := new(big.Rat).Mul(of.Regret, stepRat)
-	if err := sameRat("offset-rule worst-case regret", f.Offset.Regret, oU, of.Values); err != nil {
+	if err := sameRat("offset-rule worst-case regret", f.Offset.Regret, oU, of.Worst); err != nil {
 		return nil, err
 	}
 	rep.Offset = oU

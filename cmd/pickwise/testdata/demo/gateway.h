@@ -15,11 +15,11 @@
  * Guarantee
  *   Worst-case regret of this rule (the largest expected shortfall of the
  *   picked channel's true value from the best one, over all true values):
- *   0.212690896 dB (0.425381792 steps), computed exactly in rational
+ *   0.212690605 dB (0.425381209 steps), computed exactly in rational
  *   arithmetic for the 16-bit probabilities of this code and rounded up.
- *   The optimum over all rules lies in [0.212689871, 0.212690285] dB
+ *   The optimum over all rules lies in [0.212690262, 0.212690263] dB
  *   (certified bounds of the solved model); rounding the probabilities to
- *   multiples of 1/65536 costs at most 0.00000102454866 dB over the optimum.
+ *   multiples of 1/65536 costs at most 0.000000341510589 dB over the optimum.
  *
  * Caution
  *   The guarantee holds only for the noise model stated above: if the
