@@ -49,8 +49,11 @@ test: deps
 demo: build
 	./$(BIN) demo
 
+# bench runs the Go benchmarks once each, then the scale cases side by side
+# with the direct LP, and writes bench/results.md.
 bench: deps build
 	$(GO) test -run '^$$' -bench . -benchtime 1x -timeout 60m ./...
+	$(GO) run ./cmd/pickwise-bench -pickwise $(BIN) -o bench/results.md -timeout 10m
 
 clean:
 	rm -rf bin pickwise-demo
