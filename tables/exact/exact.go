@@ -176,8 +176,16 @@ func (t *Table) Nums(r []int, q []uint64) {
 // the alive set are set to zero, and the largest entry absorbs the residue
 // so that every cell sums to exactly 1.
 func Snap(o *tables.Optimal, bits uint) *tables.Optimal {
-	den := int64(1) << bits
+	return remap(o, int64(1)<<bits, func(p float64) int64 { return snapOne(p, bits) })
+}
+
+// remap returns a copy of o whose probabilities are integers over den:
+// num(p) for each positive probability of an alive channel, zero
+// elsewhere, with the largest entry (or the first alive channel, when none
+// is positive) absorbing the residue so that every cell sums to den.
+func remap(o *tables.Optimal, den int64, num func(p float64) int64) *tables.Optimal {
 	out := tables.NewOptimal(o.Layout)
+	r := make([]int, o.Layout.N())
 	for ti, t := range o.Tables {
 		dst := out.Tables[ti]
 		for _, c := range t.Cells {
@@ -188,15 +196,13 @@ func Snap(o *tables.Optimal, bits uint) *tables.Optimal {
 				if !c.Alive.Has(t.Members[i]) || !(p > 0) {
 					continue
 				}
-				q[i] = snapOne(math.Min(p, 1), bits)
+				q[i] = num(math.Min(p, 1))
 				s += q[i]
 				if big < 0 || q[i] > q[big] {
 					big = i
 				}
 			}
 			if big < 0 {
-				// No positive entry: uniform over alive would not be
-				// dyadic in general; give all to the first alive channel.
 				for i := range c.P {
 					if c.Alive.Has(t.Members[i]) {
 						big = i
@@ -207,9 +213,8 @@ func Snap(o *tables.Optimal, bits uint) *tables.Optimal {
 			q[big] += den - s
 			p := make([]float64, len(q))
 			for i := range q {
-				p[i] = math.Ldexp(float64(q[i]), -int(bits))
+				p[i] = float64(q[i]) / float64(den)
 			}
-			r := make([]int, o.Layout.N())
 			for i, ch := range t.Members {
 				r[ch] = c.Diff[i]
 			}

@@ -74,43 +74,8 @@ func Rationalize(o *tables.Optimal, fallbackBits uint) (*tables.Optimal, uint64)
 		}
 	}
 	den := lcm.Int64()
-	out := tables.NewOptimal(o.Layout)
-	for ti, t := range o.Tables {
-		dst := out.Tables[ti]
-		for _, c := range t.Cells {
-			q := make([]int64, len(c.P))
-			var s int64
-			big := -1
-			for i, p := range c.P {
-				if !c.Alive.Has(t.Members[i]) || !(p > 0) {
-					continue
-				}
-				a, b, _ := rationalApprox(math.Min(p, 1), 1<<16, 1e-11)
-				q[i] = a * (den / b)
-				s += q[i]
-				if big < 0 || q[i] > q[big] {
-					big = i
-				}
-			}
-			if big < 0 {
-				for i := range c.P {
-					if c.Alive.Has(t.Members[i]) {
-						big = i
-						break
-					}
-				}
-			}
-			q[big] += den - s
-			p := make([]float64, len(q))
-			for i := range q {
-				p[i] = float64(q[i]) / float64(den)
-			}
-			r := make([]int, o.Layout.N())
-			for i, ch := range t.Members {
-				r[ch] = c.Diff[i]
-			}
-			dst.Add(r, c.Alive, p)
-		}
-	}
-	return out, uint64(den)
+	return remap(o, den, func(p float64) int64 {
+		a, b, _ := rationalApprox(p, 1<<16, 1e-11)
+		return a * (den / b)
+	}), uint64(den)
 }
