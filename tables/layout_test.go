@@ -1,0 +1,105 @@
+package tables
+
+import (
+	"testing"
+
+	"github.com/pickwise/pickwise/discretize"
+)
+
+// TestConfigurations counts configurations by hand: value vectors on the
+// subset with minimum 0 and sorted gaps of at most d.
+func TestConfigurations(t *testing.T) {
+	for _, tc := range []struct {
+		name string
+		n    int
+		q    Set
+		d    int
+		want int
+	}{
+		// (0,0) (0,1) (1,0) (0,2) (2,0)
+		{"pair, gaps <= 2", 2, SetOf(0, 1), 2, 5},
+		// sorted profiles 000, 001, 011, 012: 1 + 3 + 3 + 6 assignments
+		{"triple, gaps <= 1", 3, SetOf(0, 1, 2), 1, 13},
+		// a pair inside three channels: the third stays Far
+		{"pair of three, gaps <= 1", 3, SetOf(0, 2), 1, 3},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			seen := make(map[[3]int]bool)
+			count := 0
+			Configurations(tc.n, tc.q, tc.d, func(v []int) bool {
+				var k [3]int
+				copy(k[:], v)
+				if seen[k] {
+					t.Errorf("configuration %v enumerated twice", v)
+				}
+				seen[k] = true
+				for i, x := range v {
+					if tc.q.Has(i) != (x > Far/2) {
+						t.Errorf("configuration %v: channel %d membership wrong", v, i)
+					}
+				}
+				count++
+				return true
+			})
+			if count != tc.want {
+				t.Errorf("%d configurations, want %d", count, tc.want)
+			}
+		})
+	}
+}
+
+func pmfModel(t *testing.T, pmfs ...[]float64) *Layout {
+	t.Helper()
+	m := &discretize.Model{Step: 1}
+	for _, w := range pmfs {
+		p, err := discretize.Quantize(int(w[0]), w[1:])
+		if err != nil {
+			t.Fatal(err)
+		}
+		m.Channels = append(m.Channels, discretize.Channel{Name: "c", PMF: p})
+	}
+	l, err := NewLayout(m)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return l
+}
+
+// TestOffsets checks offsets derived by hand. An exact channel needs none.
+// A channel that always reads 2 steps high has zero regret with any offset
+// in [-2.5, -1.5] steps (half steps -5..-3): the rule picks the smallest
+// |theta|, -1.5 steps. The coin channel (noise -1 or +1) is symmetric: 0.
+func TestOffsets(t *testing.T) {
+	l := pmfModel(t, []float64{0, 1}, []float64{2, 1}, []float64{-1, 0.5, 0, 0.5})
+	got := l.OffsetHalfSteps()
+	want := []int{0, -3, 0}
+	for i := range want {
+		if got[i] != want[i] {
+			t.Errorf("offsets %v half steps, want %v", got, want)
+			break
+		}
+	}
+}
+
+// TestLayoutDistances checks G, S, T and D on a hand example: spreads 0,
+// 2 and 3 steps, noise ranges [0,0], [-1,1], [0,3].
+func TestLayoutDistances(t *testing.T) {
+	l := pmfModel(t, []float64{0, 1}, []float64{-1, 1, 1, 1}, []float64{0, 1, 1, 1, 1})
+	// G = 2 + 3; S = hi_2 - lo_1 = 3 - (-1); T = G + S; D = G + 2S.
+	if l.G != 5 || l.S != 4 || l.T != 9 || l.D != 13 {
+		t.Errorf("G, S, T, D = %d, %d, %d, %d, want 5, 4, 9, 13", l.G, l.S, l.T, l.D)
+	}
+	r := []int{0, 9, Far}
+	if g := l.TopGroup(r, nil); g != SetOf(0, 1) {
+		t.Errorf("top group of %v: %v, want channels 0 and 1", r, g.Members())
+	}
+	r = []int{0, 10, Far}
+	if g := l.TopGroup(r, nil); g != SetOf(1) {
+		t.Errorf("top group of %v: %v, want channel 1 alone", r, g.Members())
+	}
+	// Channel 0 (exact, reads 0) is certainly below channel 1 when
+	// r_0 - r_1 < lo_0 - hi_1 = -1, i.e. r_1 >= 2.
+	if !l.Below(0, 1, 0, 2) || l.Below(0, 1, 0, 1) {
+		t.Error("certainly-below test wrong at the boundary")
+	}
+}
