@@ -83,6 +83,7 @@ func normalModel(step, tail float64, sigma ...float64) string {
 
 var cases = []benchCase{
 	{"n2-normal-step0.01", "under 2 s", func() string { return normalModel(0.01, 1e-6, 0.1, 0.15) }},
+	{"n2-normal-0.8-1.0-step0.01", "under 2 s", func() string { return normalModel(0.01, 1e-6, 0.8, 1.0) }},
 	{"n3-pmf15", "20x faster than the direct LP", func() string { return pmfModel(3, 15, 15) }},
 	{"n3-normal-step0.1", "under 60 s, 4 GiB", func() string { return normalModel(0.1, 1e-6, 0.8, 1.0, 1.6) }},
 	{"n4-pmf15", "under 120 s", func() string { return pmfModel(4, 15, 4) }},
