@@ -68,6 +68,41 @@ func extraCases() []lptest.Case {
 		p.AddRow([]int{y}, []float64{1}, 2, inf)
 		cases = append(cases, lptest.Case{Name: "infeasible with a free ray", Problem: p, Status: lp.Infeasible})
 	}
+	// A random LP (invented data) on which gonum's simplex cycled forever
+	// in phase I before b was perturbed. Infeasible according to CLP and
+	// GLPK's glpsol; no hand derivation.
+	{
+		p := &lp.Problem{}
+		cols := [][3]float64{{-4, -inf, 1}, {-4, 1, 3}, {-1, 1, 2}, {0, -1, 0}, {-1, 0, inf},
+			{-3, -inf, 0}, {2, -inf, -1}, {-3, -inf, 1}, {5, 2, 4}}
+		for _, c := range cols {
+			p.AddCol(c[0], c[1], c[2])
+		}
+		rows := []struct {
+			idx    []int
+			val    []float64
+			lo, up float64
+		}{
+			{[]int{6, 8, 1, 2, 5, 7, 0, 3, 4}, []float64{-1, 2, -2, -3, 1, 2, 3, -3, -2}, -inf, 2},
+			{[]int{1, 6, 7, 4}, []float64{3, 0, -2, 2}, -3, -1},
+			{[]int{5, 4, 6, 8, 1, 0, 7, 3}, []float64{-3, 1, 3, 4, 1, -1, 1, 1}, -2, inf},
+			{[]int{1, 8, 0, 4}, []float64{1, -3, -1, 0}, 1, 3},
+			{[]int{1, 4, 2, 6, 0, 3, 5, 7}, []float64{3, -4, 0, 4, 2, -4, -4, 3}, -inf, -2},
+			{[]int{2, 3}, []float64{-4, -3}, -inf, 0},
+			{[]int{1, 4, 8, 2, 0, 7, 6, 5, 3}, []float64{3, 4, -3, 1, 0, 0, -3, -4, 1}, 4, inf},
+			{[]int{5}, []float64{-3}, -inf, -4},
+			{[]int{0, 5}, []float64{-3, -4}, -3, inf},
+			{[]int{4, 6, 2, 5, 8, 0, 3, 7, 1}, []float64{-1, 3, -3, -3, 2, 0, -1, -2, -4}, -2, -2},
+			{[]int{1, 7, 0}, []float64{-4, -1, -4}, -inf, 1},
+			{[]int{8, 4, 0, 3, 1, 5}, []float64{-3, 4, 4, 0, -1, 4}, 1, inf},
+			{[]int{8, 1}, []float64{1, 2}, 0, 4},
+			{[]int{1}, []float64{1}, -inf, 4},
+		}
+		for _, r := range rows {
+			p.AddRow(r.idx, r.val, r.lo, r.up)
+		}
+		cases = append(cases, lptest.Case{Name: "cycling in phase I", Problem: p, Status: lp.Infeasible})
+	}
 	return cases
 }
 

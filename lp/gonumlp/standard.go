@@ -4,6 +4,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"math/rand/v2"
 	"sort"
 
 	"github.com/pickwise/pickwise/lp"
@@ -207,13 +208,20 @@ func eliminate(t [][]float64, size []float64, cost []float64, r, j int) {
 // twoPhase solves min cᵀx, Ax = b, x >= 0, where A has full row rank and
 // no zero row or column, with gonum's simplex.
 //
-// Gonum finds a first feasible basis with a phase I of its own that can
-// panic on a singular intermediate basis. Here phase I is the textbook one
-// instead: one artificial column per row, signed so that the artificials
-// alone are a feasible basis. The support of its solution, completed to a
-// basis with columns of A, starts phase II. Should that fail, gonum's own
-// phase I is tried. When gonum reports the problem unbounded and confirm is
-// set, the verdict is checked with confirmUnbounded.
+// Gonum's simplex chooses entering columns by Dantzig's rule and switches
+// to Bland's only for degenerate steps, a mix that can cycle forever (it
+// did on a random LP of 14 rows). So gonum only ever sees b moved by random
+// amounts of relative size 1e-11: then no vertex is degenerate, with
+// probability 1, and no step is either. The optimal basis found for the
+// moved b is then applied to b itself.
+//
+// Gonum's own phase I can also panic on a singular intermediate basis, so
+// phase I is the textbook one: one artificial column per row, signed so
+// that the artificials alone are a feasible basis. The support of its
+// solution, completed to a basis with columns of A, starts phase II. Should
+// that fail, gonum's own phase I is tried. When gonum reports the problem
+// unbounded or fails numerically and confirm is set, the outcome is
+// decided with solveBounded.
 func twoPhase(c []float64, a *mat.Dense, b []float64, tol float64, confirm bool) ([]float64, error) {
 	m, n := a.Dims()
 	bSize := 0.0
@@ -237,6 +245,11 @@ func twoPhase(c []float64, a *mat.Dense, b []float64, tol float64, confirm bool)
 		}
 		return x, nil
 	}
+	rng := rand.New(rand.NewPCG(uint64(m), uint64(n)))
+	bp := make([]float64, m)
+	for i, v := range b {
+		bp[i] = v + 1e-11*(1+math.Abs(v))*(0.5+rng.Float64())
+	}
 	x, err := func() ([]float64, error) {
 		a1 := mat.NewDense(m, n+m, nil)
 		a1.Slice(0, m, 0, n).(*mat.Dense).Copy(a)
@@ -244,14 +257,14 @@ func twoPhase(c []float64, a *mat.Dense, b []float64, tol float64, confirm bool)
 		basis := make([]int, m)
 		for i := range m {
 			s := 1.0
-			if b[i] < 0 {
+			if bp[i] < 0 {
 				s = -1
 			}
 			a1.Set(i, n+i, s)
 			c1[n+i] = 1
 			basis[i] = n + i
 		}
-		x1, err := simplex(c1, a1, b, tol, basis)
+		x1, err := simplex(c1, a1, bp, tol, basis)
 		if err != nil {
 			return nil, err
 		}
@@ -262,46 +275,33 @@ func twoPhase(c []float64, a *mat.Dense, b []float64, tol float64, confirm bool)
 		if infeas > 1e-9*(1+bSize) {
 			return nil, statusError(lp.Infeasible, "")
 		}
-		start, err := completeBasis(a, x1[:n])
+		start, xb, err := onBasis(a, bp, x1[:n], bSize)
 		if err != nil {
 			return nil, err
 		}
 		// Gonum requires the start to be feasible to 1e-13, which the
-		// round-off of phase I can miss. Values below 0 by less than the
-		// phase I tolerance are raised to 0 and b is moved to match:
-		// phase II then solves a problem within round-off of this one.
-		bs := mat.NewDense(m, m, nil)
-		for i, j := range start {
-			bs.SetCol(i, mat.Col(nil, j, a))
-		}
-		var xb mat.VecDense
-		if err := xb.SolveVec(bs, mat.NewVecDense(m, b)); err != nil {
-			return nil, err
-		}
-		moved := false
-		for i := range m {
-			if v := xb.AtVec(i); v < 0 {
-				if v < -1e-9*(1+bSize) {
-					return nil, errors.New("phase I basis infeasible")
-				}
-				xb.SetVec(i, 0)
-				moved = true
-			}
-		}
-		b2 := b
-		if moved {
-			var bv mat.VecDense
-			bv.MulVec(bs, &xb)
-			b2 = bv.RawVector().Data
-		}
-		return simplex(c, a, b2, tol, start)
+		// round-off of phase I can miss: b is moved to match the
+		// start's values, raised to 0 where they fell below.
+		var bv mat.VecDense
+		bv.MulVec(basisMatrix(a, start), mat.NewVecDense(m, xb))
+		return simplex(c, a, bv.RawVector().Data, tol, start)
 	}()
 	var se *lp.StatusError
 	if err != nil && !(errors.As(err, &se) && (se.Status == lp.Infeasible || se.Status == lp.Unbounded)) {
-		x, err = simplex(c, a, b, tol, nil)
+		x, err = simplex(c, a, bp, tol, nil)
 	}
-	if !confirm || err == nil || errors.As(err, &se) && se.Status == lp.Infeasible {
-		return x, err
+	if err == nil {
+		// The optimal basis for the moved b, applied to b.
+		if basis, xb, err := onBasis(a, b, x, bSize); err == nil {
+			clear(x)
+			for i, j := range basis {
+				x[j] = xb[i]
+			}
+		}
+		return x, nil
+	}
+	if !confirm || errors.As(err, &se) && se.Status == lp.Infeasible {
+		return nil, err
 	}
 	// Unbounded, or a numerical failure (which gonum's phase II meets on
 	// some unbounded problems): decide with a bounded problem.
@@ -311,6 +311,39 @@ func twoPhase(c []float64, a *mat.Dense, b []float64, tol float64, confirm bool)
 	}
 	// The check itself failed: gonum's verdict or failure stands.
 	return nil, err
+}
+
+// onBasis completes the support of x to a basis of a and returns it with
+// the basic values for right-hand side b, raised to 0 where round-off put
+// them below (by at most 1e-9 relative to b; more is an error).
+func onBasis(a *mat.Dense, b, x []float64, bSize float64) ([]int, []float64, error) {
+	basis, err := completeBasis(a, x)
+	if err != nil {
+		return nil, nil, err
+	}
+	m := len(b)
+	var xv mat.VecDense
+	if err := xv.SolveVec(basisMatrix(a, basis), mat.NewVecDense(m, b)); err != nil {
+		return nil, nil, err
+	}
+	xb := xv.RawVector().Data
+	for i, v := range xb {
+		if v < -1e-9*(1+bSize) {
+			return nil, nil, errors.New("basis infeasible")
+		}
+		xb[i] = math.Max(v, 0)
+	}
+	return basis, xb, nil
+}
+
+// basisMatrix returns the columns of a listed in basis.
+func basisMatrix(a *mat.Dense, basis []int) *mat.Dense {
+	m, _ := a.Dims()
+	bm := mat.NewDense(m, len(basis), nil)
+	for i, j := range basis {
+		bm.SetCol(i, mat.Col(nil, j, a))
+	}
+	return bm
 }
 
 // completeBasis returns m linearly independent columns of a (m×n) that
