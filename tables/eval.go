@@ -55,6 +55,56 @@ func (l *Layout) Regret(rule Rule, v []int) float64 {
 	return sum
 }
 
+// EachConfiguration visits every configuration of every subset of at
+// least two of the n channels whose sorted value gaps are at most d steps,
+// spread over runtime.GOMAXPROCS(0) goroutines. Each goroutine gets its own
+// visit function from newVisit, so it can keep state without locking; visit
+// receives the configuration's position in enumeration order (Subsets,
+// then Configurations), its subset, and the values, which it may keep.
+// EachConfiguration returns when every visit has returned, with the number
+// of configurations.
+func EachConfiguration(n, d int, newVisit func() func(seq int, q Set, v []int)) int {
+	type job struct {
+		seq int
+		q   Set
+		v   []int
+	}
+	workers := runtime.GOMAXPROCS(0)
+	jobs := make(chan []job, workers)
+	var wg sync.WaitGroup
+	for w := 0; w < workers; w++ {
+		visit := newVisit()
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for batch := range jobs {
+				for _, j := range batch {
+					visit(j.seq, j.q, j.v)
+				}
+			}
+		}()
+	}
+	count := 0
+	var batch []job
+	for _, q := range Subsets(n) {
+		Configurations(n, q, d, func(v []int) bool {
+			batch = append(batch, job{count, q, append([]int(nil), v...)})
+			count++
+			if len(batch) == 64 {
+				jobs <- batch
+				batch = nil
+			}
+			return true
+		})
+	}
+	if len(batch) > 0 {
+		jobs <- batch
+	}
+	close(jobs)
+	wg.Wait()
+	return count
+}
+
 // WorstCase returns the worst-case regret of rule over every configuration
 // of every subset of at least two channels whose sorted consecutive value
 // gaps are at most d steps. For the table rules of this package d = l.D
@@ -62,63 +112,29 @@ func (l *Layout) Regret(rule Rule, v []int) float64 {
 // readings needs d widened by the largest shift. Ties keep the first
 // configuration in enumeration order, so the result is deterministic.
 func (l *Layout) WorstCase(rule Rule, d int) Worst {
-	type job struct {
-		seq int
-		v   []int
-	}
 	type res struct {
 		seq    int
 		regret float64
 		v      []int
 	}
-	workers := runtime.GOMAXPROCS(0)
-	jobs := make(chan []job, workers)
-	results := make(chan res, workers)
-	var wg sync.WaitGroup
-	for w := 0; w < workers; w++ {
-		wg.Add(1)
-		go func() {
-			defer wg.Done()
-			best := res{seq: -1}
-			for batch := range jobs {
-				for _, j := range batch {
-					reg := l.Regret(rule, j.v)
-					if best.seq < 0 || reg > best.regret || (reg == best.regret && j.seq < best.seq) {
-						best = res{j.seq, reg, j.v}
-					}
-				}
+	var bests []*res
+	count := EachConfiguration(l.N(), d, func() func(int, Set, []int) {
+		best := &res{seq: -1}
+		bests = append(bests, best)
+		return func(seq int, _ Set, v []int) {
+			reg := l.Regret(rule, v)
+			if best.seq < 0 || reg > best.regret || (reg == best.regret && seq < best.seq) {
+				*best = res{seq, reg, v}
 			}
-			results <- best
-		}()
-	}
-	count := 0
-	go func() {
-		var batch []job
-		for _, q := range Subsets(l.N()) {
-			Configurations(l.N(), q, d, func(v []int) bool {
-				batch = append(batch, job{count, append([]int(nil), v...)})
-				count++
-				if len(batch) == 64 {
-					jobs <- batch
-					batch = nil
-				}
-				return true
-			})
 		}
-		if len(batch) > 0 {
-			jobs <- batch
-		}
-		close(jobs)
-		wg.Wait()
-		close(results)
-	}()
+	})
 	best := res{seq: -1}
-	for r := range results {
+	for _, r := range bests {
 		if r.seq < 0 {
 			continue
 		}
 		if best.seq < 0 || r.regret > best.regret || (r.regret == best.regret && r.seq < best.seq) {
-			best = r
+			best = *r
 		}
 	}
 	w := Worst{Regret: best.regret, Values: best.v, Configurations: count}

@@ -15,8 +15,6 @@ import (
 	"math"
 	"math/big"
 	"math/bits"
-	"runtime"
-	"sync"
 
 	"github.com/pickwise/pickwise/discretize"
 	"github.com/pickwise/pickwise/tables"
@@ -302,7 +300,6 @@ func regretNum(l *tables.Layout, num [][]uint64, rule Rule, v []int, mem []int, 
 	q := make([]uint64, n)
 	m := len(mem)
 	last := mem[m-1]
-	prefix := big.NewInt(1)
 	tmp := new(big.Int)
 	out.SetInt64(0)
 	prefixes := make([]*big.Int, m)
@@ -346,7 +343,6 @@ func regretNum(l *tables.Layout, num [][]uint64, rule Rule, v []int, mem []int, 
 			rec(i + 1)
 		}
 	}
-	_ = prefix
 	rec(0)
 }
 
@@ -356,68 +352,33 @@ func WorstCase(l *tables.Layout, rule Rule, d int) Worst {
 	num := nums(l)
 	n := l.N()
 	den := new(big.Int).SetUint64(rule.Den())
-	type job struct {
-		seq int
-		v   []int
-		q   tables.Set
-	}
 	type res struct {
 		seq int
 		val *big.Int // numerator scaled to 2^(52n) * den
 		v   []int
 		q   tables.Set
 	}
-	workers := runtime.GOMAXPROCS(0)
-	jobs := make(chan []job, workers)
-	results := make(chan res, workers)
-	var wg sync.WaitGroup
-	for w := 0; w < workers; w++ {
-		wg.Add(1)
-		go func() {
-			defer wg.Done()
-			best := res{seq: -1}
-			val := new(big.Int)
-			for batch := range jobs {
-				for _, j := range batch {
-					mem := j.q.Members()
-					regretNum(l, num, rule, j.v, mem, val)
-					val.Lsh(val, uint(discretize.DenomBits*(n-len(mem))))
-					if best.seq < 0 || val.Cmp(best.val) > 0 {
-						best = res{j.seq, new(big.Int).Set(val), j.v, j.q}
-					}
-				}
+	var bests []*res
+	tables.EachConfiguration(n, d, func() func(int, tables.Set, []int) {
+		best := &res{seq: -1}
+		bests = append(bests, best)
+		val := new(big.Int)
+		return func(seq int, q tables.Set, v []int) {
+			mem := q.Members()
+			regretNum(l, num, rule, v, mem, val)
+			val.Lsh(val, uint(discretize.DenomBits*(n-len(mem))))
+			if best.seq < 0 || val.Cmp(best.val) > 0 {
+				*best = res{seq, new(big.Int).Set(val), v, q}
 			}
-			results <- best
-		}()
-	}
-	go func() {
-		seq := 0
-		var batch []job
-		for _, q := range tables.Subsets(n) {
-			tables.Configurations(n, q, d, func(v []int) bool {
-				batch = append(batch, job{seq, append([]int(nil), v...), q})
-				seq++
-				if len(batch) == 32 {
-					jobs <- batch
-					batch = nil
-				}
-				return true
-			})
 		}
-		if len(batch) > 0 {
-			jobs <- batch
-		}
-		close(jobs)
-		wg.Wait()
-		close(results)
-	}()
+	})
 	best := res{seq: -1}
-	for r := range results {
+	for _, r := range bests {
 		if r.seq < 0 {
 			continue
 		}
 		if best.seq < 0 || r.val.Cmp(best.val) > 0 || (r.val.Cmp(best.val) == 0 && r.seq < best.seq) {
-			best = r
+			best = *r
 		}
 	}
 	scale := new(big.Int).Lsh(den, uint(discretize.DenomBits*n))
