@@ -68,7 +68,7 @@ type CGResult struct {
 	Converged bool
 }
 
-// Cells adds a column for every cell of every group of layout l: every
+// allCells adds a column for every cell of every group of the layout: every
 // vector of reading differences, within the group's span, whose sorted
 // readings are joined by gaps of at most T and that leaves at least two
 // channels not certainly below another.
