@@ -301,3 +301,81 @@ func (l *Layout) Outcomes(q Set, fn func(a []int, prob float64)) {
 	}
 	rec(0, 1)
 }
+
+// Differences is the joint pmf of the noise differences a_k - a_first of
+// the channels of a subset, first being its lowest-numbered member. The
+// readings of a configuration v, up to a common shift, are v + E for E
+// drawn from it: everything a translation-invariant rule does depends on
+// the readings only through these differences, so summing over this pmf
+// replaces the sum over all joint noise outcomes.
+type Differences struct {
+	Set Set
+	// E holds n offsets (in steps) per point, row-major: entries outside
+	// Set and the first member's are 0.
+	E    []int
+	Prob []float64
+}
+
+// Len returns the number of points of d.
+func (d *Differences) Len() int { return len(d.Prob) }
+
+// Point returns the offsets of point k (n entries; callers must not
+// modify them).
+func (d *Differences) Point(k int) []int {
+	n := len(d.E) / max(len(d.Prob), 1)
+	return d.E[k*n : (k+1)*n]
+}
+
+// Differences returns the joint pmf of the noise differences of subset q
+// (see the type), its points in increasing lexicographic order of the
+// differences and without zero-probability points. Building it costs one
+// pass over the joint noise outcomes; it has at most the product over the
+// members but the first of (w_first + w_k + 1) points.
+func (l *Layout) Differences(q Set) *Differences {
+	mem := q.Members()
+	n := l.N()
+	f := mem[0]
+	rest := mem[1:]
+	ext := make([]int, len(rest))
+	stride := make([]int, len(rest))
+	size := 1
+	for k := len(rest) - 1; k >= 0; k-- {
+		c := rest[k]
+		ext[k] = l.Hi[c] - l.Lo[c] + l.Hi[f] - l.Lo[f] + 1
+		stride[k] = size
+		size *= ext[k]
+	}
+	acc := make([]float64, size)
+	// Index of e_k = a_k - a_f: (a_k - Lo_k) + (Hi_f - a_f).
+	var rec func(k, base int, prob float64, af int)
+	rec = func(k, base int, prob float64, af int) {
+		if k == len(rest) {
+			acc[base] += prob
+			return
+		}
+		c := rest[k]
+		for j, p := range l.P[c] {
+			if p != 0 {
+				rec(k+1, base+(j+l.Hi[f]-af)*stride[k], prob*p, af)
+			}
+		}
+	}
+	for j, p := range l.P[f] {
+		if p != 0 {
+			rec(0, 0, p, l.Lo[f]+j)
+		}
+	}
+	d := &Differences{Set: q}
+	e := make([]int, n)
+	for i, p := range acc {
+		if p == 0 {
+			continue
+		}
+		for k, c := range rest {
+			e[c] = (i/stride[k])%ext[k] - (l.Hi[f] - l.Lo[c])
+		}
+		d.E = append(d.E, e...)
+		d.Prob = append(d.Prob, p)
+	}
+	return d
+}

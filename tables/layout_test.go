@@ -1,6 +1,7 @@
 package tables
 
 import (
+	"math"
 	"testing"
 
 	"github.com/pickwise/pickwise/discretize"
@@ -101,5 +102,60 @@ func TestLayoutDistances(t *testing.T) {
 	// r_0 - r_1 < lo_0 - hi_1 = -1, i.e. r_1 >= 2.
 	if !l.Below(0, 1, 0, 2) || l.Below(0, 1, 0, 1) {
 		t.Error("certainly-below test wrong at the boundary")
+	}
+}
+
+// TestDifferences checks the difference pmf against a hand count and
+// against the sum over all joint outcomes.
+func TestDifferences(t *testing.T) {
+	// Channel 0: -1 or +1 with 1/2 each; channel 1: 0 or 1 with 1/4, 3/4.
+	// a_1 - a_0 is 1 (1/8), 2 (3/8), -1 (1/8), 0 (3/8): worked by hand.
+	l := pmfModel(t, []float64{-1, 0.5, 0, 0.5}, []float64{0, 0.25, 0.75})
+	d := l.Differences(SetOf(0, 1))
+	want := map[int]float64{-1: 0.125, 0: 0.375, 1: 0.125, 2: 0.375}
+	if d.Len() != len(want) {
+		t.Fatalf("%d points, want %d", d.Len(), len(want))
+	}
+	prev := -100
+	for k := 0; k < d.Len(); k++ {
+		e := d.Point(k)
+		if e[0] != 0 || e[1] <= prev {
+			t.Errorf("point %d: %v (first offset must be 0, points increasing)", k, e)
+		}
+		prev = e[1]
+		if got := d.Prob[k]; math.Abs(got-want[e[1]]) > 1e-15 {
+			t.Errorf("P(e=%d) = %g, want %g", e[1], got, want[e[1]])
+		}
+	}
+
+	// Three channels, a subset of two that skips one, and the full set:
+	// every point's probability equals the sum over joint outcomes with
+	// those differences.
+	l = pmfModel(t, []float64{-2, 0.1, 0, 0.3, 0.6}, []float64{0, 0.5, 0.5}, []float64{-1, 0.2, 0.2, 0.2, 0.4})
+	for _, q := range []Set{SetOf(0, 2), SetOf(1, 2), SetOf(0, 1, 2)} {
+		sums := make(map[[3]int]float64)
+		mem := q.Members()
+		l.Outcomes(q, func(a []int, p float64) {
+			var k [3]int
+			for _, c := range mem {
+				k[c] = a[c] - a[mem[0]]
+			}
+			if p != 0 {
+				sums[k] += p
+			}
+		})
+		d := l.Differences(q)
+		total := 0.0
+		for k := 0; k < d.Len(); k++ {
+			var key [3]int
+			copy(key[:], d.Point(k))
+			if math.Abs(sums[key]-d.Prob[k]) > 1e-15 {
+				t.Errorf("set %v point %v: %g, outcomes give %g", q, key, d.Prob[k], sums[key])
+			}
+			total += d.Prob[k]
+		}
+		if d.Len() != len(sums) || math.Abs(total-1) > 1e-12 {
+			t.Errorf("set %v: %d points summing to %g, outcomes give %d points", q, d.Len(), total, len(sums))
+		}
 	}
 }

@@ -50,6 +50,7 @@ type Formulation struct {
 	Tables *tables.Optimal
 
 	colOf map[tables.Set][]int32 // first column of each cell, per group
+	diffs map[tables.Set]*tables.Differences
 	// scratch for rows
 	acc     []float64
 	touched []int
@@ -112,7 +113,8 @@ func factorial(m int) float64 {
 func newFormulation(l *tables.Layout) *Formulation {
 	n := l.N()
 	f := &Formulation{Layout: l, Problem: &lp.Problem{}, Tables: tables.NewOptimal(l),
-		colOf: make(map[tables.Set][]int32), r: make([]int, n), order: make([]int, n)}
+		colOf: make(map[tables.Set][]int32), diffs: make(map[tables.Set]*tables.Differences),
+		r: make([]int, n), order: make([]int, n)}
 	f.Problem.AddCol(1, 0, math.Inf(1)) // t
 	return f
 }
@@ -154,10 +156,13 @@ func (f *Formulation) regretRow(v []int, create bool, idx []int, val []float64) 
 	var forced float64
 	var err error
 	r := f.r
-	l.Outcomes(q, func(a []int, prob float64) {
-		if err != nil {
-			return
-		}
+	diff := f.diffs[q]
+	if diff == nil {
+		diff = l.Differences(q)
+		f.diffs[q] = diff
+	}
+	for k := 0; k < diff.Len() && err == nil; k++ {
+		a, prob := diff.Point(k), diff.Prob[k]
 		for i := range r {
 			r[i] = v[i] + a[i]
 		}
@@ -172,14 +177,14 @@ func (f *Formulation) regretRow(v []int, create bool, idx []int, val []float64) 
 					forced += prob * float64(top-v[i])
 				}
 			}
-			return
+			continue
 		}
 		t := f.Tables.Table(g)
 		ci := t.Lookup(r)
 		if ci < 0 {
 			if !create {
 				err = fmt.Errorf("minimax: configuration %v reaches a cell of group %v that has no column", v, t.Members)
-				return
+				continue
 			}
 			ci = f.addCell(g, alive, r)
 		}
@@ -196,7 +201,7 @@ func (f *Formulation) regretRow(v []int, create bool, idx []int, val []float64) 
 			}
 			col++
 		}
-	})
+	}
 	sort.Ints(f.touched)
 	idx, val = idx[:0], val[:0]
 	for _, c := range f.touched {
