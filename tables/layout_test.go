@@ -2,6 +2,7 @@ package tables
 
 import (
 	"math"
+	"math/rand/v2"
 	"testing"
 
 	"github.com/pickwise/pickwise/discretize"
@@ -156,6 +157,57 @@ func TestDifferences(t *testing.T) {
 		}
 		if d.Len() != len(sums) || math.Abs(total-1) > 1e-12 {
 			t.Errorf("set %v: %d points summing to %g, outcomes give %d points", q, d.Len(), total, len(sums))
+		}
+	}
+}
+
+// TestOffsetWorstDefinition checks the tail-sum evaluation of the offset
+// rule's worst case against its definition, a direct sum over the noise
+// outcomes at every value difference, on seeded random pmfs with zeros.
+func TestOffsetWorstDefinition(t *testing.T) {
+	rng := rand.New(rand.NewPCG(7, 7))
+	for trial := 0; trial < 30; trial++ {
+		lo := rng.IntN(9) - 6
+		p := make([]float64, 1+rng.IntN(8))
+		var s float64
+		for k := range p {
+			if rng.IntN(4) > 0 {
+				p[k] = rng.Float64()
+			}
+			s += p[k]
+		}
+		if s == 0 {
+			p[0], s = 1, 1
+		}
+		for k := range p {
+			p[k] /= s
+		}
+		below := make([]float64, len(p)+1)
+		above := make([]float64, len(p)+1)
+		for k := range p {
+			below[k+1] = below[k] + p[k]
+		}
+		for k := len(p) - 1; k >= 0; k-- {
+			above[k] = above[k+1] + p[k]
+		}
+		hi := lo + len(p) - 1
+		for m := -2*hi - 2; m <= -2*lo+2; m++ {
+			var want float64
+			for d := -40; d <= 40; d++ {
+				var wrong float64
+				for k, pk := range p {
+					switch s := 2*(d+lo+k) + m; {
+					case d != 0 && s == 0:
+						wrong += pk / 2
+					case d > 0 && s < 0, d < 0 && s > 0:
+						wrong += pk
+					}
+				}
+				want = math.Max(want, float64(abs(d))*wrong)
+			}
+			if got := offsetWorst(lo, p, below, above, m); math.Abs(got-want) > 1e-14 {
+				t.Fatalf("pmf %v from %d, offset %d half steps: %g, direct sum %g", p, lo, m, got, want)
+			}
 		}
 	}
 }

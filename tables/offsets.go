@@ -21,12 +21,23 @@ func (l *Layout) OffsetHalfSteps() []int {
 // an exact reference.
 func offsetOne(lo int, p []float64) (half int, worst float64) {
 	hi := lo + len(p) - 1
+	// Tail sums of the pmf: below[j] is the mass of offsets lo..lo+j-1,
+	// summed from the low end, above[j] the mass of lo+j..hi, summed from
+	// the high end, so that small tails keep their relative accuracy.
+	below := make([]float64, len(p)+1)
+	above := make([]float64, len(p)+1)
+	for k, pk := range p {
+		below[k+1] = below[k] + pk
+	}
+	for k := len(p) - 1; k >= 0; k-- {
+		above[k] = above[k+1] + p[k]
+	}
 	// An offset beyond the noise range only adds regret: the rule would
 	// always or never pick the channel.
 	mlo, mhi := -2*hi-2, -2*lo+2
 	first := true
 	for m := mlo; m <= mhi; m++ {
-		w := offsetWorst(lo, p, m)
+		w := offsetWorst(lo, p, below, above, m)
 		switch {
 		case first:
 			half, worst, first = m, w, false
@@ -45,26 +56,31 @@ func offsetOne(lo int, p []float64) (half int, worst float64) {
 }
 
 // offsetWorst is the worst-case regret, in steps, of the two-channel offset
-// rule with offset m half steps against an exact reference.
-func offsetWorst(lo int, p []float64, m int) float64 {
+// rule with offset m half steps against an exact reference; below and
+// above are the tail sums of p (see offsetOne).
+func offsetWorst(lo int, p, below, above []float64, m int) float64 {
 	hi := lo + len(p) - 1
 	r := abs(lo) + abs(hi) + abs(m) + 2
+	clamp := func(j int) int { return min(max(j, 0), len(p)) }
 	var worst float64
 	for d := -r; d <= r; d++ {
 		if d == 0 {
 			continue
 		}
-		// d = v_channel - v_reference. The channel is picked when
-		// 2(d+a)+m > 0; half of the mass at equality.
+		// d = v_channel - v_reference. With k the pmf index of the
+		// noise, the rule picks the channel when 2k > x and shares on
+		// 2k = x, where x = -m - 2d - 2lo. It is wrong when it picks
+		// the lower channel: below the threshold for d > 0, above it
+		// for d < 0; half of the mass at equality.
+		x := -m - 2*d - 2*lo
 		var wrong float64
-		for k, pk := range p {
-			s := 2*(d+lo+k) + m
-			switch {
-			case s == 0:
-				wrong += pk / 2
-			case d > 0 && s < 0, d < 0 && s > 0:
-				wrong += pk
-			}
+		if d > 0 {
+			wrong = below[clamp(ceilHalf(x))]
+		} else {
+			wrong = above[clamp(floorHalf(x)+1)]
+		}
+		if x%2 == 0 && x/2 >= 0 && x/2 < len(p) {
+			wrong += p[x/2] / 2
 		}
 		if reg := float64(abs(d)) * wrong; reg > worst {
 			worst = reg
@@ -72,6 +88,10 @@ func offsetWorst(lo int, p []float64, m int) float64 {
 	}
 	return worst
 }
+
+// floorHalf and ceilHalf return floor(x/2) and ceil(x/2).
+func floorHalf(x int) int { return x >> 1 }
+func ceilHalf(x int) int  { return -((-x) >> 1) }
 
 func abs(x int) int {
 	if x < 0 {
