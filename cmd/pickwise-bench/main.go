@@ -9,6 +9,7 @@
 // Usage:
 //
 //	pickwise-bench -pickwise bin/pickwise -o bench/results.md [-timeout 10m] [-cases a,b]
+//	pickwise-bench -models DIR   (writes the cases' model files and exits)
 package main
 
 import (
@@ -142,7 +143,17 @@ func main() {
 	out := flag.String("o", "bench/results.md", "report to write")
 	timeout := flag.Duration("timeout", 10*time.Minute, "time limit of each solve")
 	only := flag.String("cases", "", "comma-separated case names (default: all)")
+	models := flag.String("models", "", "write the model files of the cases into this directory and exit")
 	flag.Parse()
+	if *models != "" {
+		for _, c := range cases {
+			if err := os.WriteFile(filepath.Join(*models, c.name+".toml"), []byte(c.model()), 0o644); err != nil {
+				fmt.Fprintln(os.Stderr, err)
+				os.Exit(1)
+			}
+		}
+		return
+	}
 	dir, err := os.MkdirTemp("", "pickwise-bench")
 	if err != nil {
 		fmt.Fprintln(os.Stderr, err)

@@ -38,8 +38,7 @@ import (
 )
 
 // Algorithm selects the CLP driver used for the first solve of a model.
-// Re-solves after Model.AddRows always use the dual simplex from the
-// previous basis.
+// Re-solves after Model.AddRows use Model.Resolve from the previous basis.
 type Algorithm int
 
 // Algorithms. The zero value, Primal, is the primal simplex from the

@@ -125,6 +125,12 @@ func TestRandomDuality(t *testing.T) {
 // optimum, re-solves from the basis, and compares with a solve of the
 // enlarged problem from scratch.
 func TestModelAddRows(t *testing.T) {
+	for _, alg := range []clp.Algorithm{clp.Primal, clp.Dual} {
+		t.Run(alg.String(), func(t *testing.T) { testModelAddRows(t, alg) })
+	}
+}
+
+func testModelAddRows(t *testing.T, alg clp.Algorithm) {
 	rng := rand.New(rand.NewPCG(3, 4))
 	warm, cold := 0, 0
 	for k := range 10 {
@@ -134,6 +140,7 @@ func TestModelAddRows(t *testing.T) {
 			t.Fatal(err)
 		}
 		defer m.Close()
+		m.Resolve = alg
 		sol, err := m.Solve(context.Background())
 		if err != nil {
 			t.Fatalf("problem %d: %v", k, err)
