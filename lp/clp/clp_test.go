@@ -295,3 +295,72 @@ func TestTimeLimit(t *testing.T) {
 		t.Errorf("two solves limited to 10ms took %v", d)
 	}
 }
+
+// TestModelAddColumns grows a model by columns and then by rows that use
+// them, as constraint generation does when new table cells appear, and
+// compares every re-solve with a solve from scratch of the same problem.
+func TestModelAddColumns(t *testing.T) {
+	rng := rand.New(rand.NewPCG(5, 6))
+	for k := range 8 {
+		p, x0 := lptest.Boxed(rng, 20, 25, 0.3)
+		m, err := clp.NewModel(p)
+		if err != nil {
+			t.Fatal(err)
+		}
+		defer m.Close()
+		if _, err := m.Solve(context.Background()); err != nil {
+			t.Fatalf("problem %d: %v", k, err)
+		}
+		full := clone(p)
+		for round := range 3 {
+			// Three new columns with costs of both signs, bounded, and a
+			// row tying each to an old column.
+			var lo, up, obj []float64
+			for range 3 {
+				c := rng.Float64()*2 - 1
+				lo, up, obj = append(lo, 0), append(up, 1+rng.Float64()), append(obj, c)
+				full.AddCol(c, 0, up[len(up)-1])
+			}
+			if err := m.AddColumns(lo, up, obj); err != nil {
+				t.Fatal(err)
+			}
+			var r clp.Rows
+			for j := range 3 {
+				old := rng.IntN(p.NumCols())
+				idx := []int{old, m.NumCols() - 3 + j}
+				val := []float64{1, 1}
+				// x0 with the new columns at 0 stays feasible.
+				r.Add(idx, val, math.Inf(-1), x0[old]+0.5)
+				full.AddRow(idx, val, math.Inf(-1), x0[old]+0.5)
+			}
+			if err := m.AddRows(&r); err != nil {
+				t.Fatal(err)
+			}
+			if m.NumCols() != full.NumCols() || m.NumRows() != full.NumRows() {
+				t.Fatalf("model has %d columns and %d rows, want %d and %d", m.NumCols(), m.NumRows(), full.NumCols(), full.NumRows())
+			}
+			sol, err := m.Solve(context.Background())
+			if err != nil {
+				t.Fatalf("problem %d round %d: %v", k, round, err)
+			}
+			scratch, err := clp.Solver{}.Solve(context.Background(), full)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if math.Abs(sol.Objective-scratch.Objective) > 1e-8*(1+math.Abs(scratch.Objective)) {
+				t.Errorf("problem %d round %d: objective %.12g, from scratch %.12g", k, round, sol.Objective, scratch.Objective)
+			}
+			if err := lptest.CheckOptimal(full, sol.X, sol.RowDual, sol.Objective, 1e-8); err != nil {
+				t.Errorf("problem %d round %d: %v", k, round, err)
+			}
+		}
+	}
+	m, err := clp.NewModel(&lp.Problem{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer m.Close()
+	if err := m.AddColumns([]float64{1}, []float64{0}, []float64{0}); err == nil {
+		t.Error("column with lower bound above upper bound accepted")
+	}
+}

@@ -153,6 +153,41 @@ func (m *Model) AddRows(r *Rows) error {
 	return nil
 }
 
+// AddColumns appends len(lo) columns in no row, with bounds lo[k] <= x <=
+// up[k] and costs obj[k]; rows added later may use them. The next Solve
+// starts from the current basis with the new columns nonbasic.
+func (m *Model) AddColumns(lo, up, obj []float64) error {
+	if m.ptr == nil {
+		return ErrClosed
+	}
+	k := len(lo)
+	if len(up) != k || len(obj) != k {
+		return fmt.Errorf("clp: adding columns: %d lower bounds, %d upper bounds, %d costs", k, len(up), len(obj))
+	}
+	for j := range k {
+		if math.IsNaN(lo[j]) || math.IsNaN(up[j]) || lo[j] > up[j] || math.IsInf(lo[j], 1) || math.IsInf(up[j], -1) {
+			return fmt.Errorf("clp: adding columns: column %d has bounds [%g, %g]", m.cols+j, lo[j], up[j])
+		}
+		if math.IsNaN(obj[j]) || math.IsInf(obj[j], 0) {
+			return fmt.Errorf("clp: adding columns: column %d has cost %g", m.cols+j, obj[j])
+		}
+	}
+	if k == 0 {
+		return nil
+	}
+	if m.cols+k > math.MaxInt32-1 {
+		return fmt.Errorf("clp: adding columns: model would have %d columns, too many for 32-bit indices", m.cols+k)
+	}
+	starts := make([]C.CoinBigIndex, k+1)
+	var dummyIndex C.int
+	var dummyValue C.double
+	C.Clp_addColumns(m.ptr, C.int(k), dptr(lo), dptr(up), dptr(obj), &starts[0], &dummyIndex, &dummyValue)
+	m.cols += k
+	m.used = append(m.used, make([]bool, k)...)
+	runtime.KeepAlive(m)
+	return nil
+}
+
 // addRows passes a checked CSR batch to CLP. Index, value and bound slices
 // are passed as they are (int32 and float64 have C's layout and the slices
 // hold no Go pointers); only the starts are converted.
