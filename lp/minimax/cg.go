@@ -16,6 +16,9 @@ import (
 // added after a solve are handled from the previous basis (the dual simplex
 // warm start of CLP, for example).
 type Incremental interface {
+	// AddColumns appends len(lo) columns in no row, with bounds
+	// lo[k] <= x <= up[k] and costs obj[k].
+	AddColumns(lo, up, obj []float64) error
 	// AddRows appends the rows of p (its columns are ignored; the column
 	// indices must exist in the model).
 	AddRows(p *lp.Problem) error
@@ -43,6 +46,9 @@ type CGOptions struct {
 	Progress func(Progress)
 	// Evaluator evaluates rules at every configuration.
 	Evaluator fast.Evaluator
+	// NoSymmetry ignores that channels with identical noise are
+	// interchangeable (see Options.NoSymmetry).
+	NoSymmetry bool
 }
 
 // Progress reports one round of constraint generation, in steps.
@@ -68,48 +74,27 @@ type CGResult struct {
 	Converged bool
 }
 
-// allCells adds a column for every cell of every group of the layout: every
-// vector of reading differences, within the group's span, whose sorted
-// readings are joined by gaps of at most T and that leaves at least two
-// channels not certainly below another.
-func (f *Formulation) allCells() {
-	l := f.Layout
-	n := l.N()
-	r := make([]int, n)
-	for _, g := range tables.Subsets(n) {
-		mem := g.Members()
-		m := len(mem)
-		span := l.T * (m - 1)
-		for i := range r {
-			r[i] = tables.Far
-		}
-		r[mem[0]] = 0
-		var rec func(k int)
-		rec = func(k int) {
-			if k == m {
-				if l.TopGroup(r, f.order) != g {
-					return
-				}
-				if alive := l.Alive(g, r); alive.Len() >= 2 {
-					f.addCell(g, alive, r)
-				}
-				return
-			}
-			for d := -span; d <= span; d++ {
-				r[mem[k]] = d
-				rec(k + 1)
-			}
-		}
-		rec(1)
+// configKey identifies a configuration by its values (tables.Far outside
+// its subset); pickwise supports at most 16 channels.
+type configKey [16]int64
+
+func keyOf(v []int) configKey {
+	var k configKey
+	for i, x := range v {
+		k[i] = int64(x)
 	}
+	return k
 }
 
 // SolveCG solves the LP of layout l by constraint generation: it solves
 // over a working set of configurations, evaluates the resulting rule at
 // every configuration with the fast evaluator, adds the most violated ones,
 // and re-solves from the previous basis, until no configuration's regret
-// exceeds the LP value by more than the tolerance. Every cell has a column
-// from the start, so the rule is defined everywhere.
+// exceeds the LP value by more than the tolerance. Cells get columns when
+// a configuration of the working set first reaches them; a cell without a
+// column picks as tables.Optimal does for a missing cell (the alive channel
+// with the highest reading), and the evaluation of every configuration
+// accounts for that, so the final rule is the one certified.
 func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (Incremental, error), opt CGOptions) (*CGResult, error) {
 	start := time.Now()
 	tol := opt.Tol
@@ -125,25 +110,33 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 		maxRounds = 1000
 	}
 	n := l.N()
-	f := newFormulation(l)
-	f.allCells()
-	f.addCellRows()
-	inSet := make(map[string]bool)
-	key := func(v []int) string { return fmt.Sprint(v) }
+	f := newFormulation(l, opt.NoSymmetry)
+	// canon maps a configuration to the one whose row stands for its
+	// orbit under the symmetry (itself without one).
+	cv := make([]int, n)
+	canon := func(v []int) []int {
+		if f.sym == nil {
+			return v
+		}
+		f.sym.canonConfig(v, cv)
+		return cv
+	}
+	inSet := make(map[configKey]bool)
 
 	// pending collects the rows of configurations to add.
 	pending := &lp.Problem{}
 	var idx []int
 	var val []float64
 	add := func(v []int) error {
-		k := key(v)
+		v = canon(v)
+		k := keyOf(v)
 		if inSet[k] {
 			return nil
 		}
 		inSet[k] = true
 		var forced float64
 		var err error
-		idx, val, forced, err = f.regretRow(v, false, idx, val)
+		idx, val, forced, err = f.regretRow(v, true, idx, val)
 		if err != nil {
 			return err
 		}
@@ -161,34 +154,34 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 	type scored struct {
 		v   []int
 		reg float64
-		seq int
 	}
 	worst := func(rule tables.Rule, threshold float64) ([]scored, float64, int, error) {
 		var out []scored
 		top := 0.0
 		count := 0
 		for _, q := range tables.Subsets(n) {
-			var list []scored
-			seq := 0
+			// list holds the batch most violated so far, most violated
+			// first; of equal regrets the earlier enumerated.
+			list := make([]scored, 0, batch)
 			err := opt.Evaluator.Regrets(l, rule, q, l.D, func(v []int, reg float64) {
-				seq++
 				top = math.Max(top, reg)
-				if reg > threshold && !inSet[key(v)] {
-					list = append(list, scored{append([]int(nil), v...), reg, seq})
+				if reg <= threshold || inSet[keyOf(canon(v))] {
+					return
 				}
+				count++
+				if len(list) == batch && reg <= list[batch-1].reg {
+					return
+				}
+				if len(list) == batch {
+					list = list[:batch-1]
+				}
+				k := sort.Search(len(list), func(i int) bool { return list[i].reg < reg })
+				list = append(list, scored{})
+				copy(list[k+1:], list[k:])
+				list[k] = scored{append([]int(nil), v...), reg}
 			})
 			if err != nil {
 				return nil, 0, 0, err
-			}
-			count += len(list)
-			sort.Slice(list, func(a, b int) bool {
-				if list[a].reg != list[b].reg {
-					return list[a].reg > list[b].reg
-				}
-				return list[a].seq < list[b].seq
-			})
-			if len(list) > batch {
-				list = list[:batch]
 			}
 			out = append(out, list...)
 		}
@@ -205,7 +198,9 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 			return nil, err
 		}
 	}
-	// The model starts with the cell rows and the initial regret rows.
+	f.addCellRowsFrom(1, nil)
+	cols := f.Problem.NumCols()
+	// The model starts with the initial regret rows and the cell rows.
 	model, err := newModel(f.Problem)
 	if err != nil {
 		return nil, err
@@ -245,6 +240,17 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 				return nil, err
 			}
 		}
+		if k := f.Problem.NumCols() - cols; k > 0 {
+			lo, up, obj := make([]float64, k), make([]float64, k), make([]float64, k)
+			for j := range up {
+				up[j] = math.Inf(1)
+			}
+			if err := model.AddColumns(lo, up, obj); err != nil {
+				return nil, err
+			}
+		}
+		f.addCellRowsFrom(cols, pending)
+		cols = f.Problem.NumCols()
 		if err := model.AddRows(pending); err != nil {
 			return nil, err
 		}

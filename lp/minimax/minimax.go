@@ -20,6 +20,7 @@ package minimax
 import (
 	"fmt"
 	"math"
+	"slices"
 	"sort"
 
 	"github.com/pickwise/pickwise/lp"
@@ -31,6 +32,10 @@ type Var struct {
 	Group   tables.Set
 	Cell    int32 // index in the group's table
 	Channel int8  // position of the channel among the group's members
+	// Mult is the number of members of the cell whose probability the
+	// column is: 1, or more for members that the symmetry of identical
+	// channels makes interchangeable in this cell.
+	Mult int8
 }
 
 // Formulation is the linear program of a model with the bookkeeping needed
@@ -49,7 +54,11 @@ type Formulation struct {
 	// probabilities are uniform until Apply is called.
 	Tables *tables.Optimal
 
-	colOf map[tables.Set][]int32 // first column of each cell, per group
+	// cols holds, per group, the column of each member in each cell
+	// (-1 where the member is not alive), |members| entries per cell.
+	// Cells in one orbit of the symmetry share columns.
+	cols  map[tables.Set][]int32
+	sym   *symmetry
 	diffs map[tables.Set]*tables.Differences
 	// scratch for rows
 	acc     []float64
@@ -63,6 +72,10 @@ type Options struct {
 	// MaxNonzeros refuses a model whose LP is estimated to hold more
 	// nonzeros (0: the default, 4e8).
 	MaxNonzeros float64
+	// NoSymmetry gives every configuration its row and every cell its
+	// columns even when channels with identical noise make them
+	// interchangeable (see the package doc).
+	NoSymmetry bool
 }
 
 // SizeError reports a model whose LP is too large to build.
@@ -109,33 +122,120 @@ func factorial(m int) float64 {
 	return f
 }
 
-// newFormulation returns a formulation with column t and no cells.
-func newFormulation(l *tables.Layout) *Formulation {
+// newFormulation returns a formulation with column t and no cells; it uses
+// the symmetry of identical channels unless noSym is set.
+func newFormulation(l *tables.Layout, noSym bool) *Formulation {
 	n := l.N()
 	f := &Formulation{Layout: l, Problem: &lp.Problem{}, Tables: tables.NewOptimal(l),
-		colOf: make(map[tables.Set][]int32), diffs: make(map[tables.Set]*tables.Differences),
+		cols: make(map[tables.Set][]int32), diffs: make(map[tables.Set]*tables.Differences),
 		r: make([]int, n), order: make([]int, n)}
+	if !noSym {
+		f.sym = newSymmetry(l)
+	}
 	f.Problem.AddCol(1, 0, math.Inf(1)) // t
 	return f
 }
 
+// Symmetric reports whether the formulation keeps one row per orbit of
+// configurations and shares columns within orbits of cells, because some
+// channels have identical noise.
+func (f *Formulation) Symmetric() bool { return f.sym != nil }
+
 // addCell adds the cell of readings r to group g's table with one column
-// per alive channel, and returns its index.
-func (f *Formulation) addCell(g, alive tables.Set, r []int) int {
+// per alive channel, and returns its index. When share is not nil, member
+// k uses the column of member share[k] <= k instead (share[k] == k: its
+// own column).
+func (f *Formulation) addCell(g, alive tables.Set, r []int, share []int) int {
 	t := f.Tables.Table(g)
 	ci := t.Add(r, alive, nil)
 	p := f.Problem
-	f.colOf[g] = append(f.colOf[g], int32(p.NumCols()))
+	first := len(f.cols[g])
 	for k, ch := range t.Members {
-		if alive.Has(ch) {
+		col := int32(-1)
+		switch {
+		case !alive.Has(ch):
+		case share != nil && share[k] != k:
+			col = f.cols[g][first+share[k]]
+			f.Vars[col-1].Mult++
+		default:
+			col = int32(p.NumCols())
 			p.AddCol(0, 0, math.Inf(1))
-			f.Vars = append(f.Vars, Var{Group: g, Cell: int32(ci), Channel: int8(k)})
+			f.Vars = append(f.Vars, Var{Group: g, Cell: int32(ci), Channel: int8(k), Mult: 1})
 		}
+		f.cols[g] = append(f.cols[g], col)
 	}
 	for len(f.acc) < p.NumCols() {
 		f.acc = append(f.acc, 0)
 	}
 	return ci
+}
+
+// addOrbit adds the cell of readings r in group g's table, with alive set
+// alive, and returns its index. With a symmetry it adds every cell of the
+// orbit: the canonical one gets the columns and the others share them,
+// member for member under the permutation.
+func (f *Formulation) addOrbit(g, alive tables.Set, r []int) int {
+	if f.sym == nil {
+		return f.addCell(g, alive, r, nil)
+	}
+	n := len(r)
+	s := f.sym.canonCell(f.Tables, g, r)
+	cg := mapSet(s, g)
+	cr := make([]int, n)
+	apply(s, r, cr)
+	ct := f.Tables.Table(cg)
+	pos := make([]int, n) // position of each channel among cg's members
+	for k, ch := range ct.Members {
+		pos[ch] = k
+	}
+	// The permutations that fix the canonical cell (its stabiliser) must
+	// fix the rule there too: members that one of them swaps share a
+	// column. Without this the rows of non-canonical configurations,
+	// which the LP leaves out, would not equal their canonical rows.
+	m := len(ct.Members)
+	share := make([]int, m)
+	for k := range share {
+		share[k] = k
+	}
+	key, _ := ct.Key(cr)
+	img := make([]int, n)
+	for _, p := range f.sym.perms[1:] {
+		if mapSet(p, cg) != cg {
+			continue
+		}
+		apply(p, cr, img)
+		if k, _ := ct.Key(img); k != key {
+			continue
+		}
+		for k, ch := range ct.Members {
+			a, b := share[k], share[pos[p[ch]]]
+			lo := min(a, b)
+			// Merge the classes of a and b under their least member.
+			for j := range share {
+				if share[j] == a || share[j] == b {
+					share[j] = lo
+				}
+			}
+		}
+	}
+	ci := f.addCell(cg, mapSet(s, alive), cr, share)
+	ccols := f.cols[cg][ci*m : (ci+1)*m]
+	for _, p := range f.sym.perms[1:] {
+		pg := mapSet(p, cg)
+		t := f.Tables.Table(pg)
+		apply(p, cr, img)
+		if t.Lookup(img) >= 0 {
+			continue
+		}
+		calive := f.Tables.Table(cg).Cells[ci].Alive
+		t.Add(img, mapSet(p, calive), nil)
+		for _, ch := range t.Members {
+			// The channel that p maps to ch.
+			src := slices.Index(p, ch)
+			f.cols[pg] = append(f.cols[pg], ccols[pos[src]])
+		}
+	}
+	return f.Tables.Table(g).Lookup(r)
 }
 
 // regretRow returns the regret row of configuration v (without the -t
@@ -186,20 +286,21 @@ func (f *Formulation) regretRow(v []int, create bool, idx []int, val []float64) 
 				err = fmt.Errorf("minimax: configuration %v reaches a cell of group %v that has no column", v, t.Members)
 				continue
 			}
-			ci = f.addCell(g, alive, r)
+			ci = f.addOrbit(g, alive, r)
 		}
-		col := int(f.colOf[g][ci])
-		for _, ch := range t.Members {
+		m := len(t.Members)
+		cols := f.cols[g][ci*m : (ci+1)*m]
+		for k, ch := range t.Members {
 			if !alive.Has(ch) {
 				continue
 			}
 			if d := top - v[ch]; d != 0 {
+				col := cols[k]
 				if f.acc[col] == 0 {
-					f.touched = append(f.touched, col)
+					f.touched = append(f.touched, int(col))
 				}
 				f.acc[col] += prob * float64(d)
 			}
-			col++
 		}
 	}
 	sort.Ints(f.touched)
@@ -227,13 +328,20 @@ func Build(l *tables.Layout, opt Options) (*Formulation, error) {
 		return nil, &SizeError{Rows: rows, Nonzeros: nz, Bytes: nz * 40}
 	}
 	n := l.N()
-	f := newFormulation(l)
+	f := newFormulation(l, opt.NoSymmetry)
 	p := f.Problem
 	var idx []int
 	var val []float64
 	var err error
+	w := make([]int, n)
 	for _, q := range tables.Subsets(n) {
 		tables.Configurations(n, q, l.D, func(v []int) bool {
+			if f.sym != nil {
+				// One row per orbit: the canonical configuration's.
+				if f.sym.canonConfig(v, w); !slices.Equal(v, w) {
+					return true
+				}
+			}
 			var forced float64
 			idx, val, forced, err = f.regretRow(v, true, idx, val)
 			if err != nil {
@@ -255,45 +363,56 @@ func Build(l *tables.Layout, opt Options) (*Formulation, error) {
 
 // addCellRows appends one row per cell: the probabilities of its alive
 // channels sum to 1.
-func (f *Formulation) addCellRows() {
+func (f *Formulation) addCellRows() { f.addCellRowsFrom(1, nil) }
+
+// addCellRowsFrom appends the rows of the cells whose columns start at
+// column first or later to the problem, and to also when it is not nil.
+func (f *Formulation) addCellRowsFrom(first int, also *lp.Problem) {
 	p := f.Problem
 	var idx []int
 	var val []float64
-	for j := 1; j < p.NumCols(); {
+	for j := first; j < p.NumCols(); {
 		v := f.Vars[j-1]
 		k := j
 		idx, val = idx[:0], val[:0]
 		for k < p.NumCols() && f.Vars[k-1].Group == v.Group && f.Vars[k-1].Cell == v.Cell {
 			idx = append(idx, k)
-			val = append(val, 1)
+			val = append(val, float64(f.Vars[k-1].Mult))
 			k++
 		}
 		p.AddRow(idx, val, 1, 1)
+		if also != nil {
+			also.AddRow(idx, val, 1, 1)
+		}
 		j = k
 	}
 }
 
 // Apply copies the probabilities of solution x into the formulation's
 // tables: negative round-off is clipped to 0 and each cell renormalised.
+// Cells that share columns under the symmetry get the same probabilities,
+// permuted.
 func (f *Formulation) Apply(x []float64) {
-	for j := 1; j < len(x) && j <= len(f.Vars); {
-		v := f.Vars[j-1]
-		t := f.Tables.Table(v.Group)
-		cell := &t.Cells[v.Cell]
-		k := j
-		var s float64
-		for k < len(x) && k <= len(f.Vars) && f.Vars[k-1].Group == v.Group && f.Vars[k-1].Cell == v.Cell {
-			pv := math.Max(x[k], 0)
-			cell.P[f.Vars[k-1].Channel] = pv
-			s += pv
-			k++
-		}
-		if s > 0 {
-			for i := range cell.P {
-				cell.P[i] /= s
+	for _, t := range f.Tables.Tables {
+		m := len(t.Members)
+		cols := f.cols[t.Group]
+		for ci := range t.Cells {
+			cell := &t.Cells[ci]
+			var s float64
+			for k := range m {
+				pv := 0.0
+				if c := cols[ci*m+k]; c >= 0 && int(c) < len(x) {
+					pv = math.Max(x[c], 0)
+				}
+				cell.P[k] = pv
+				s += pv
+			}
+			if s > 0 {
+				for k := range cell.P {
+					cell.P[k] /= s
+				}
 			}
 		}
-		j = k
 	}
 }
 
@@ -330,4 +449,29 @@ func (f *Formulation) Prior(dual []float64) []float64 {
 		w[i] /= s
 	}
 	return w
+}
+
+// PriorConfigs returns the prior of Prior spread over all configurations:
+// with a symmetry, the weight of each row is shared equally by the
+// configurations of its orbit (the prior the rows stand for, which the
+// group leaves unchanged). Configurations of zero weight are left out.
+func (f *Formulation) PriorConfigs(dual []float64) (configs [][]int, weights []float64) {
+	w := f.Prior(dual)
+	for k, x := range w {
+		if x == 0 {
+			continue
+		}
+		v := f.Config(k)
+		if f.sym == nil {
+			configs = append(configs, slices.Clone(v))
+			weights = append(weights, x)
+			continue
+		}
+		orb := f.sym.orbit(v)
+		for _, u := range orb {
+			configs = append(configs, u)
+			weights = append(weights, x/float64(len(orb)))
+		}
+	}
+	return configs, weights
 }

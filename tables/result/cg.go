@@ -23,6 +23,8 @@ func newCLPIncremental(tol float64) func(p *lp.Problem) (minimax.Incremental, er
 	}
 }
 
+func (c clpIncremental) AddColumns(lo, up, obj []float64) error { return c.m.AddColumns(lo, up, obj) }
+
 func (c clpIncremental) AddRows(p *lp.Problem) error {
 	return c.m.AddRows(&clp.Rows{Start: p.RowStart, Index: p.Index, Value: p.Value, Lo: p.RowLo, Up: p.RowUp})
 }

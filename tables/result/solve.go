@@ -55,6 +55,10 @@ type Options struct {
 	// all configurations. Polishing makes tables monotone and decisive
 	// where the worst case leaves them free, and costs a second LP solve.
 	NoPolish bool
+	// NoSymmetry solves the LP without using that channels with identical
+	// noise are interchangeable (minimax.Options.NoSymmetry); the answer
+	// is the same, the LP larger.
+	NoSymmetry bool
 }
 
 // Figure is the exact worst-case regret of a rule.
@@ -152,7 +156,7 @@ func Solve(ctx context.Context, m *discretize.Model, opt Options) (*Solution, er
 	t0 := time.Now()
 	switch method {
 	case MethodDirect:
-		f, err = minimax.Build(l, minimax.Options{MaxNonzeros: opt.MaxNonzeros})
+		f, err = minimax.Build(l, minimax.Options{MaxNonzeros: opt.MaxNonzeros, NoSymmetry: opt.NoSymmetry})
 		if err != nil {
 			return nil, err
 		}
@@ -177,7 +181,7 @@ func Solve(ctx context.Context, m *discretize.Model, opt Options) (*Solution, er
 		if solver.Name() != "clp" {
 			return nil, fmt.Errorf("constraint generation needs the clp backend, not %s", solver.Name())
 		}
-		cg := minimax.CGOptions{Progress: opt.Progress}
+		cg := minimax.CGOptions{Progress: opt.Progress, NoSymmetry: opt.NoSymmetry}
 		if opt.TimeLimit > 0 {
 			cg.Deadline = t0.Add(opt.TimeLimit)
 		}
@@ -210,14 +214,14 @@ func Solve(ctx context.Context, m *discretize.Model, opt Options) (*Solution, er
 	if sol.RowDual == nil {
 		return nil, fmt.Errorf("the %s backend gave no dual solution: the lower bound needs one", solver.Name())
 	}
-	if prior := f.Prior(sol.RowDual); prior != nil {
+	if configs, prior := f.PriorConfigs(sol.RowDual); prior != nil {
 		w, err := exact.SnapWeights(prior, ProbBits)
 		if err != nil {
 			return nil, err
 		}
 		for k, x := range w {
 			if x != 0 {
-				s.Configs = append(s.Configs, append([]int(nil), f.Config(k)...))
+				s.Configs = append(s.Configs, configs[k])
 				s.Weights = append(s.Weights, x)
 			}
 		}
