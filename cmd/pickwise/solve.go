@@ -265,6 +265,9 @@ type certificateJSON struct {
 
 type lpJSON struct {
 	Solver    string  `json:"solver"`
+	Method    string  `json:"method"`
+	Converged bool    `json:"converged"`
+	Rounds    int     `json:"rounds,omitempty"`
 	Rows      int     `json:"rows"`
 	Columns   int     `json:"columns"`
 	Nonzeros  int     `json:"nonzeros"`
@@ -303,7 +306,7 @@ func writeSummaryJSON(w io.Writer, sol *result.Solution) error {
 		OptimalWorst: worstJSON(m, sol.Optimal.Worst),
 		GreedyWorst:  worstJSON(m, sol.Greedy.Worst),
 		OffsetWorst:  worstJSON(m, sol.Offset.Worst),
-		LP: lpJSON{Solver: sol.Solver, Rows: sol.Rows, Columns: sol.Columns, Nonzeros: sol.Nonzeros,
+		LP: lpJSON{Solver: sol.Solver, Method: sol.Method, Converged: sol.Converged, Rounds: sol.Rounds, Rows: sol.Rows, Columns: sol.Columns, Nonzeros: sol.Nonzeros,
 			Objective: sol.Objective * m.Step},
 	}
 	for _, c := range m.Channels {

@@ -391,8 +391,13 @@ func (f *Formulation) addCellRowsFrom(first int, also *lp.Problem) {
 // Apply copies the probabilities of solution x into the formulation's
 // tables: negative round-off is clipped to 0 and each cell renormalised.
 // Cells that share columns under the symmetry get the same probabilities,
-// permuted.
+// permuted. A cell none of whose columns is in x picks as a missing cell
+// does (tables.Fallback).
 func (f *Formulation) Apply(x []float64) {
+	r := make([]int, f.Layout.N())
+	for i := range r {
+		r[i] = tables.Far
+	}
 	for _, t := range f.Tables.Tables {
 		m := len(t.Members)
 		cols := f.cols[t.Group]
@@ -411,6 +416,19 @@ func (f *Formulation) Apply(x []float64) {
 				for k := range cell.P {
 					cell.P[k] /= s
 				}
+				continue
+			}
+			// No probabilities in x (a cell added after x was found):
+			// pick as a table without the cell would.
+			for k, ch := range t.Members {
+				r[ch] = cell.Diff[k]
+			}
+			pick := tables.Fallback(cell.Alive, r)
+			for k, ch := range t.Members {
+				r[ch] = tables.Far
+				if ch == pick {
+					cell.P[k] = 1
+				}
 			}
 		}
 	}
@@ -427,8 +445,9 @@ func (f *Formulation) Config(k int) []int {
 
 // Prior returns the prior over configurations given by the duals of the
 // regret rows: the negated duals, clipped at 0 and normalised to sum to 1,
-// one weight per configuration. It returns nil when the duals are missing
-// or all zero.
+// one weight per configuration. Rows beyond the end of dual (added after
+// the solve) get weight 0. It returns nil when the duals are missing or
+// all zero.
 func (f *Formulation) Prior(dual []float64) []float64 {
 	if dual == nil {
 		return nil
@@ -436,10 +455,9 @@ func (f *Formulation) Prior(dual []float64) []float64 {
 	w := make([]float64, len(f.RowOf))
 	var s float64
 	for k, row := range f.RowOf {
-		if row >= len(dual) {
-			return nil
+		if row < len(dual) {
+			w[k] = math.Max(-dual[row], 0)
 		}
-		w[k] = math.Max(-dual[row], 0)
 		s += w[k]
 	}
 	if s == 0 {
