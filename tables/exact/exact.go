@@ -90,6 +90,10 @@ func (s shareRule) Nums(r []int, q []uint64) {
 type Table struct {
 	O     *tables.Optimal
 	Denom uint64
+	// near reports that every float probability of O is within 1e-15 of
+	// its numerator over Denom, so that O itself can stand for the table
+	// in float evaluations.
+	near bool
 }
 
 // NewTable checks that every probability of o is a non-negative multiple of
@@ -115,12 +119,15 @@ func NewTableDen(o *tables.Optimal, den uint64) (*Table, error) {
 }
 
 func newTable(o *tables.Optimal, den uint64, strict bool) (*Table, error) {
-	t := &Table{O: o, Denom: den}
+	t := &Table{O: o, Denom: den, near: true}
 	for _, tab := range o.Tables {
 		for _, c := range tab.Cells {
 			var s uint64
 			for i, p := range c.P {
 				q, ok := t.numerator(p, strict)
+				if math.Abs(p-float64(q)/float64(den)) > 1e-15 {
+					t.near = false
+				}
 				if !ok {
 					return nil, fmt.Errorf("group %v cell %v: probability %v of channel %d is not a multiple of 1/%d in [0, 1]", tab.Members, c.Diff, p, tab.Members[i], den)
 				}

@@ -14,6 +14,31 @@ type floatRule struct {
 	den float64
 }
 
+// Floater is implemented by exact rules that have a float form of their
+// own, cheaper to evaluate than converting every Nums: its probabilities
+// must equal Nums/Den to within a few units of float64 round-off.
+type Floater interface {
+	Float() tables.Rule
+}
+
+// Float returns the float form of the greedy or offset rule.
+func (s shareRule) Float() tables.Rule {
+	if s.half == nil {
+		return tables.Greedy{}
+	}
+	return tables.Offset{Half: s.half}
+}
+
+// Float returns the float form of a table rule: its tables when their
+// probabilities are within 1e-15 of the numerators over the denominator,
+// otherwise the numerators converted at each lookup.
+func (t *Table) Float() tables.Rule {
+	if t.near {
+		return t.O
+	}
+	return floatRule{t, float64(t.Denom)}
+}
+
 func (f floatRule) Probs(r []int, p []float64) {
 	var q [16]uint64
 	f.r.Nums(r, q[:len(r)])
@@ -34,7 +59,10 @@ const screenTol = 1e-9
 // 1e-9 of the float maximum. Every other configuration is below the
 // maximum by far more than the float error, so it cannot reach it.
 func WorstCaseScreened(l *tables.Layout, rule Rule, d int) (Worst, error) {
-	fr := floatRule{rule, float64(rule.Den())}
+	var fr tables.Rule = floatRule{rule, float64(rule.Den())}
+	if f, ok := rule.(Floater); ok {
+		fr = f.Float()
+	}
 	w, err := fast.WorstCase(l, fr, d)
 	if err != nil {
 		return Worst{}, err
