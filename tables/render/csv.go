@@ -36,8 +36,10 @@ import (
 //	               when c_i is not in the group
 //
 // all d_steps columns come first, then all d_units, then all p, each in
-// channel order. Readings not covered by a cell are forced: the rule picks
-// the one channel of the top group not certainly below another.
+// channel order. Readings not covered by a cell pick the highest reading
+// among the channels of the top group not certainly below another, the
+// lowest-numbered on a tie (tables.Fallback); with one such channel the
+// choice is forced.
 func CSV(w io.Writer, sol *result.Solution) error {
 	if err := check(sol); err != nil {
 		return err

@@ -54,8 +54,10 @@ type jsonCell struct {
 //	              float64 (table probabilities are multiples of 2^-48);
 //	              0 for a channel certainly below another
 //
-// Readings not covered by a cell are forced: the rule picks the one
-// channel of the top group not certainly below another.
+// Readings not covered by a cell pick the highest reading among the
+// channels of the top group not certainly below another, the
+// lowest-numbered on a tie (tables.Fallback); with one such channel the
+// choice is forced.
 func JSON(w io.Writer, sol *result.Solution) error {
 	if err := check(sol); err != nil {
 		return err
