@@ -175,6 +175,7 @@ func main() {
 	}
 	b.WriteString("| case | target | pickwise s | pickwise MiB | direct s | direct MiB | ratio | rounds | converged | rows (cg / direct) | columns | nonzeros (cg / direct) | certified gap | worst case |\n")
 	b.WriteString("| --- | --- | ---: | ---: | ---: | ---: | ---: | ---: | --- | --- | ---: | --- | ---: | ---: |\n")
+	var notes []string
 	for _, c := range cases {
 		if *only != "" && !strings.Contains(","+*only+",", ","+c.name+",") {
 			continue
@@ -195,9 +196,22 @@ func main() {
 		fmt.Fprintf(os.Stderr, "%s: direct %s in %.1f s\n", c.name, d.status, d.seconds)
 		cell := func(r run, x float64, f string) string {
 			if !r.ok {
-				return r.status
+				return "-"
 			}
 			return fmt.Sprintf(f, x)
+		}
+		// A failed solve shows a short status in its time column and its
+		// message below the table, without the temporary directory.
+		status := func(r run, who string) string {
+			if r.ok {
+				return fmt.Sprintf("%.2f", r.seconds)
+			}
+			if strings.HasPrefix(r.status, "failed: ") {
+				msg := strings.ReplaceAll(strings.TrimPrefix(r.status, "failed: "), dir+string(filepath.Separator), "")
+				notes = append(notes, fmt.Sprintf("- %s, %s: %s", c.name, who, msg))
+				return fmt.Sprintf("failed after %.1f s (see below)", r.seconds)
+			}
+			return r.status
 		}
 		ratio := "-"
 		if p.ok && d.ok {
@@ -210,8 +224,14 @@ func main() {
 			conv = map[bool]string{true: "yes", false: "no"}[p.converged]
 		}
 		fmt.Fprintf(&b, "| %s | %s | %s | %.0f | %s | %.0f | %s | %d | %s | %d / %d | %d | %d / %d | %s | %s |\n",
-			c.name, c.target, cell(p, p.seconds, "%.2f"), p.peakMiB, cell(d, d.seconds, "%.2f"), d.peakMiB, ratio, p.rounds, conv,
+			c.name, c.target, status(p, "pickwise"), p.peakMiB, status(d, "direct"), d.peakMiB, ratio, p.rounds, conv,
 			p.rows, d.rows, p.columns, p.nonzeros, d.nonzeros, cell(p, p.gap, "%.2g"), cell(p, p.upper, "%.9g"))
+	}
+	if len(notes) > 0 {
+		b.WriteString("\nMessages of the solves that failed:\n\n")
+		for _, n := range notes {
+			b.WriteString(n + "\n")
+		}
 	}
 	if err := os.MkdirAll(filepath.Dir(*out), 0o755); err != nil {
 		fmt.Fprintln(os.Stderr, err)
