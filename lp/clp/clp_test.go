@@ -3,6 +3,7 @@ package clp_test
 import (
 	"context"
 	"errors"
+	"fmt"
 	"math"
 	"math/rand/v2"
 	"testing"
@@ -162,23 +163,8 @@ func testModelAddRows(t *testing.T, alg clp.Algorithm) {
 			if err := m.AddRows(&r); err != nil {
 				t.Fatal(err)
 			}
-			if m.NumRows() != full.NumRows() || m.NumCols() != full.NumCols() {
-				t.Fatalf("model has %d rows and %d columns, want %d and %d", m.NumRows(), m.NumCols(), full.NumRows(), full.NumCols())
-			}
-			sol, err = m.Solve(context.Background())
-			if err != nil {
-				t.Fatalf("problem %d round %d: %v", k, round, err)
-			}
-			scratch, err := clp.Solver{}.Solve(context.Background(), full)
-			if err != nil {
-				t.Fatal(err)
-			}
-			if math.Abs(sol.Objective-scratch.Objective) > 1e-8*(1+math.Abs(scratch.Objective)) {
-				t.Errorf("problem %d round %d: warm objective %.12g, from scratch %.12g", k, round, sol.Objective, scratch.Objective)
-			}
-			if err := lptest.CheckOptimal(full, sol.X, sol.RowDual, sol.Objective, 1e-8); err != nil {
-				t.Errorf("problem %d round %d: %v", k, round, err)
-			}
+			var scratch *lp.Solution
+			sol, scratch = resolveAndCompare(t, m, full, fmt.Sprintf("problem %d round %d", k, round))
 			warm += sol.Iterations
 			cold += scratch.Iterations
 		}
@@ -336,23 +322,7 @@ func TestModelAddColumns(t *testing.T) {
 			if err := m.AddRows(&r); err != nil {
 				t.Fatal(err)
 			}
-			if m.NumCols() != full.NumCols() || m.NumRows() != full.NumRows() {
-				t.Fatalf("model has %d columns and %d rows, want %d and %d", m.NumCols(), m.NumRows(), full.NumCols(), full.NumRows())
-			}
-			sol, err := m.Solve(context.Background())
-			if err != nil {
-				t.Fatalf("problem %d round %d: %v", k, round, err)
-			}
-			scratch, err := clp.Solver{}.Solve(context.Background(), full)
-			if err != nil {
-				t.Fatal(err)
-			}
-			if math.Abs(sol.Objective-scratch.Objective) > 1e-8*(1+math.Abs(scratch.Objective)) {
-				t.Errorf("problem %d round %d: objective %.12g, from scratch %.12g", k, round, sol.Objective, scratch.Objective)
-			}
-			if err := lptest.CheckOptimal(full, sol.X, sol.RowDual, sol.Objective, 1e-8); err != nil {
-				t.Errorf("problem %d round %d: %v", k, round, err)
-			}
+			resolveAndCompare(t, m, full, fmt.Sprintf("problem %d round %d", k, round))
 		}
 	}
 	m, err := clp.NewModel(&lp.Problem{})
@@ -363,4 +333,29 @@ func TestModelAddColumns(t *testing.T) {
 	if err := m.AddColumns([]float64{1}, []float64{0}, []float64{0}); err == nil {
 		t.Error("column with lower bound above upper bound accepted")
 	}
+}
+
+// resolveAndCompare re-solves the grown model m and checks it against a
+// solve from scratch of full, the same problem: same size, same objective
+// to 1e-8, and a primal and dual solution that are optimal for full.
+func resolveAndCompare(t *testing.T, m *clp.Model, full *lp.Problem, what string) (warm, scratch *lp.Solution) {
+	t.Helper()
+	if m.NumRows() != full.NumRows() || m.NumCols() != full.NumCols() {
+		t.Fatalf("%s: model has %d rows and %d columns, want %d and %d", what, m.NumRows(), m.NumCols(), full.NumRows(), full.NumCols())
+	}
+	warm, err := m.Solve(context.Background())
+	if err != nil {
+		t.Fatalf("%s: %v", what, err)
+	}
+	scratch, err = clp.Solver{}.Solve(context.Background(), full)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if math.Abs(warm.Objective-scratch.Objective) > 1e-8*(1+math.Abs(scratch.Objective)) {
+		t.Errorf("%s: warm objective %.12g, from scratch %.12g", what, warm.Objective, scratch.Objective)
+	}
+	if err := lptest.CheckOptimal(full, warm.X, warm.RowDual, warm.Objective, 1e-8); err != nil {
+		t.Errorf("%s: %v", what, err)
+	}
+	return warm, scratch
 }
