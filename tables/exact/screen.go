@@ -57,7 +57,10 @@ const screenTol = 1e-9
 // the same configuration, but evaluates exactly only the configurations
 // whose float regret, from the fast evaluator, comes within a relative
 // 1e-9 of the float maximum. Every other configuration is below the
-// maximum by far more than the float error, so it cannot reach it.
+// maximum by far more than the float error, so it cannot reach it. Like
+// the fast evaluator it needs a translation-invariant rule (every rule of
+// package tables is one): the exact regrets are summed over the joint pmf
+// of the noise differences.
 func WorstCaseScreened(l *tables.Layout, rule Rule, d int) (Worst, error) {
 	var fr tables.Rule = floatRule{rule, float64(rule.Den())}
 	if f, ok := rule.(Floater); ok {
@@ -77,6 +80,10 @@ func WorstCaseScreened(l *tables.Layout, rule Rule, d int) (Worst, error) {
 	var bestV []int
 	var bestQ tables.Set
 	val := new(big.Int)
+	// The exact difference pmf of each subset, built when a candidate of
+	// it first needs it: a candidate then costs one rule lookup per
+	// difference vector instead of one per joint outcome.
+	diffs := make(map[tables.Set]*diffPMF)
 	for _, v := range cands {
 		var q tables.Set
 		for i, x := range v {
@@ -85,7 +92,12 @@ func WorstCaseScreened(l *tables.Layout, rule Rule, d int) (Worst, error) {
 			}
 		}
 		mem := q.Members()
-		regretNum(l, num, rule, v, mem, val)
+		dp := diffs[q]
+		if dp == nil {
+			dp = exactDifferences(l, num, mem)
+			diffs[q] = dp
+		}
+		regretNumDiff(l, dp, rule, v, val)
 		val.Lsh(val, uint(discretize.DenomBits*(n-len(mem))))
 		if best == nil || val.Cmp(best) > 0 {
 			best, bestV, bestQ = new(big.Int).Set(val), v, q
