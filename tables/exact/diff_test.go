@@ -56,25 +56,7 @@ func TestRegretNumDiff(t *testing.T) {
 	rng := rand.New(rand.NewPCG(9, 3))
 	for trial := 0; trial < 9; trial++ {
 		n := 2 + trial%3
-		m := &discretize.Model{Step: 1}
-		for i := 0; i < n; i++ {
-			k := 1 + rng.IntN(4)
-			w := make([]float64, k)
-			for j := range w {
-				if j == 0 || j == k-1 || rng.IntN(3) > 0 {
-					w[j] = 0.1 + rng.Float64()
-				}
-			}
-			p, err := discretize.Quantize(rng.IntN(5)-3, w)
-			if err != nil {
-				t.Fatal(err)
-			}
-			m.Channels = append(m.Channels, discretize.Channel{Name: "c", PMF: p})
-		}
-		l, err := tables.NewLayout(m)
-		if err != nil {
-			t.Fatal(err)
-		}
+		l := RandomLayout(t, rng, n, true)
 		num := nums(l)
 		half := l.OffsetHalfSteps()
 		for _, rule := range []Rule{Greedy(n), Offset(half), lopsided{}} {
@@ -93,4 +75,32 @@ func TestRegretNumDiff(t *testing.T) {
 			}
 		}
 	}
+}
+
+// RandomLayout returns the layout of a seeded random model of n channels
+// with 1- to 4-point pmfs at offsets from -3 to 1 steps; with gaps, points
+// inside a support may have probability 0. The external tests of this
+// package use it too.
+func RandomLayout(t testing.TB, rng *rand.Rand, n int, gaps bool) *tables.Layout {
+	t.Helper()
+	m := &discretize.Model{Step: 1}
+	for i := 0; i < n; i++ {
+		k := 1 + rng.IntN(4)
+		w := make([]float64, k)
+		for j := range w {
+			if !gaps || j == 0 || j == k-1 || rng.IntN(3) > 0 {
+				w[j] = 0.1 + rng.Float64()
+			}
+		}
+		p, err := discretize.Quantize(rng.IntN(5)-3, w)
+		if err != nil {
+			t.Fatal(err)
+		}
+		m.Channels = append(m.Channels, discretize.Channel{Name: "c", PMF: p})
+	}
+	l, err := tables.NewLayout(m)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return l
 }

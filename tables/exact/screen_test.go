@@ -4,7 +4,6 @@ import (
 	"math/rand/v2"
 	"testing"
 
-	"github.com/pickwise/pickwise/discretize"
 	"github.com/pickwise/pickwise/tables"
 	"github.com/pickwise/pickwise/tables/exact"
 )
@@ -16,23 +15,7 @@ func TestScreenedMatchesDirect(t *testing.T) {
 	rng := rand.New(rand.NewPCG(4, 2))
 	for trial := 0; trial < 12; trial++ {
 		n := 2 + trial%3
-		m := &discretize.Model{Step: 1}
-		for i := 0; i < n; i++ {
-			k := 1 + rng.IntN(4)
-			w := make([]float64, k)
-			for j := range w {
-				w[j] = 0.1 + rng.Float64()
-			}
-			p, err := discretize.Quantize(-rng.IntN(k), w)
-			if err != nil {
-				t.Fatal(err)
-			}
-			m.Channels = append(m.Channels, discretize.Channel{Name: "c", PMF: p})
-		}
-		l, err := tables.NewLayout(m)
-		if err != nil {
-			t.Fatal(err)
-		}
+		l := exact.RandomLayout(t, rng, n, false)
 		half := l.OffsetHalfSteps()
 		for _, r := range []struct {
 			name string
