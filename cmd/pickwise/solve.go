@@ -219,13 +219,17 @@ func writeSummary(w io.Writer, sol *result.Solution, timing bool) {
 		result.Float(lo), result.Float(up), u, result.Float(new(big.Rat).Sub(up, lo)))
 	fmt.Fprintf(w, "  lower bound: Bayes risk of a prior over %d configurations, valid for every rule\n", len(sol.Configs))
 	fmt.Fprintf(w, "  upper bound: worst case of the shipped tables (%d cells)\n", sol.Tables.NumCells())
-	if gap := result.Float(new(big.Rat).Sub(up, lo)); gap > 1e-9*result.Float(up) {
+	if gap := result.Float(new(big.Rat).Sub(up, lo)); gap > 1e-9*result.Float(up) && sol.Converged {
 		fmt.Fprintf(w, "  The bounds differ by more than round-off: the shipped tables are within %.3g%s of the best\n"+
 			"  possible rule. Tables that read channels further below the top group can do slightly better;\n"+
 			"  --reach K widens the grouping distance by K steps (now T = %d) and narrows the interval.\n", gap, u, l.T)
 	}
 	if !sol.Converged {
 		fmt.Fprintf(w, "  Constraint generation stopped at the time limit after %d rounds: the interval is certified but wider.\n", sol.Rounds)
+	}
+	if sol.ShippedGreedy {
+		fmt.Fprintf(w, "  The rule it had reached was worse than greedy, so the shipped tables are greedy's\n"+
+			"  (ties at the top reading shared among the channels not certainly below another).\n")
 	}
 
 	fmt.Fprintf(w, "\nLP (%s, %s): %d rows, %d columns, %d nonzeros", sol.Solver, methodText(sol), sol.Rows, sol.Columns, sol.Nonzeros)
@@ -264,14 +268,17 @@ type certificateJSON struct {
 }
 
 type lpJSON struct {
-	Solver    string  `json:"solver"`
-	Method    string  `json:"method"`
-	Converged bool    `json:"converged"`
-	Rounds    int     `json:"rounds,omitempty"`
-	Rows      int     `json:"rows"`
-	Columns   int     `json:"columns"`
-	Nonzeros  int     `json:"nonzeros"`
-	Objective float64 `json:"objective"`
+	Solver    string `json:"solver"`
+	Method    string `json:"method"`
+	Converged bool   `json:"converged"`
+	Rounds    int    `json:"rounds,omitempty"`
+	// ShippedGreedy: stopped early with a rule worse than greedy, so the
+	// tables are greedy's.
+	ShippedGreedy bool    `json:"shipped_greedy,omitempty"`
+	Rows          int     `json:"rows"`
+	Columns       int     `json:"columns"`
+	Nonzeros      int     `json:"nonzeros"`
+	Objective     float64 `json:"objective"`
 }
 
 func worstJSON(m *discretize.Model, v []int) []*float64 {
@@ -306,7 +313,7 @@ func writeSummaryJSON(w io.Writer, sol *result.Solution) error {
 		OptimalWorst: worstJSON(m, sol.Optimal.Worst),
 		GreedyWorst:  worstJSON(m, sol.Greedy.Worst),
 		OffsetWorst:  worstJSON(m, sol.Offset.Worst),
-		LP: lpJSON{Solver: sol.Solver, Method: sol.Method, Converged: sol.Converged, Rounds: sol.Rounds, Rows: sol.Rows, Columns: sol.Columns, Nonzeros: sol.Nonzeros,
+		LP: lpJSON{Solver: sol.Solver, Method: sol.Method, Converged: sol.Converged, Rounds: sol.Rounds, ShippedGreedy: sol.ShippedGreedy, Rows: sol.Rows, Columns: sol.Columns, Nonzeros: sol.Nonzeros,
 			Objective: sol.Objective * m.Step},
 	}
 	for _, c := range m.Channels {

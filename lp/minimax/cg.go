@@ -174,25 +174,26 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 		v   []int
 		reg float64
 	}
-	worst := func(rule tables.Rule, threshold float64) ([]scored, float64, int, error) {
+	worst := func(rule tables.Rule, threshold float64, sizeOf func(tables.Set) int) ([]scored, float64, int, error) {
 		var out []scored
 		top := 0.0
 		count := 0
 		for _, q := range tables.Subsets(n) {
 			// list holds the batch most violated so far, most violated
 			// first; of equal regrets the earlier enumerated.
-			list := make([]scored, 0, batch)
+			size := sizeOf(q)
+			list := make([]scored, 0, size)
 			err := opt.Evaluator.Regrets(l, rule, q, l.D, func(v []int, reg float64) {
 				top = math.Max(top, reg)
 				if reg <= threshold || inSet[keyOf(canon(v))] {
 					return
 				}
 				count++
-				if len(list) == batch && reg <= list[batch-1].reg {
+				if len(list) == size && reg <= list[size-1].reg {
 					return
 				}
-				if len(list) == batch {
-					list = list[:batch-1]
+				if len(list) == size {
+					list = list[:size-1]
 				}
 				k := sort.Search(len(list), func(i int) bool { return list[i].reg < reg })
 				list = append(list, scored{})
@@ -207,8 +208,19 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 		return out, top, count, nil
 	}
 
-	// The initial working set: the worst configurations of greedy.
-	init, _, _, err := worst(tables.Greedy{}, -1)
+	// The initial working set: the worst configurations of greedy, as
+	// many per subset as keep the first LP near a million nonzeros (a row
+	// has about two per point of the subset's difference pmf), between 8
+	// and the batch: rows of fine-step normal noise reach tens of
+	// thousands of cells each.
+	init, _, _, err := worst(tables.Greedy{}, -1, func(q tables.Set) int {
+		d := f.diffs[q]
+		if d == nil {
+			d = l.Differences(q)
+			f.diffs[q] = d
+		}
+		return min(batch, max(8, 500000/max(d.Len(), 1)))
+	})
 	if err != nil {
 		return nil, err
 	}
@@ -248,7 +260,7 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 		}
 		f.Apply(sol.X)
 		threshold := sol.Objective*(1+tol) + 1e-12
-		viol, top, count, err := worst(f.Tables, threshold)
+		viol, top, count, err := worst(f.Tables, threshold, func(tables.Set) int { return batch })
 		if err != nil {
 			return nil, err
 		}

@@ -81,10 +81,13 @@ type Solution struct {
 	Layout *tables.Layout
 
 	// LP size and outcome.
-	Solver                  string
-	Method                  string // direct or cg
-	Converged               bool   // false when constraint generation stopped early
-	Rounds                  int    // rounds of constraint generation
+	Solver    string
+	Method    string // direct or cg
+	Converged bool   // false when constraint generation stopped early
+	// ShippedGreedy reports that constraint generation stopped early with
+	// a rule worse than greedy, so Tables hold greedy's tables instead.
+	ShippedGreedy           bool
+	Rounds                  int // rounds of constraint generation
 	Rows, Columns, Nonzeros int
 	Objective               float64 // LP optimum, in steps
 	Iterations              int
@@ -210,6 +213,26 @@ func Solve(ctx context.Context, m *discretize.Model, opt Options) (*Solution, er
 	}
 	s.Upper = up.Regret
 	s.Optimal = Figure{Regret: up.Regret, Worst: up.Values}
+	if !s.Converged {
+		// Stopped early, the LP's rule can be far worse than greedy
+		// outside the configurations it has seen: ship greedy's tables
+		// when their worst case is lower. The lower bound below holds
+		// for every rule.
+		gt, gden := exact.Rationalize(greedyTables(l), ProbBits)
+		get, err := exact.NewTableDen(gt, gden)
+		if err != nil {
+			return nil, fmt.Errorf("greedy tables: %w", err)
+		}
+		gup, err := exact.WorstCaseScreened(l, get, l.D)
+		if err != nil {
+			return nil, err
+		}
+		if gup.Regret.Cmp(s.Upper) < 0 {
+			s.Tables, s.TableDen, s.Upper = gt, gden, gup.Regret
+			s.Optimal = Figure{Regret: gup.Regret, Worst: gup.Values}
+			s.ShippedGreedy = true
+		}
+	}
 
 	if sol.RowDual == nil {
 		return nil, fmt.Errorf("the %s backend gave no dual solution: the lower bound needs one", solver.Name())
