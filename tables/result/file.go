@@ -64,14 +64,17 @@ type FileLayout struct {
 
 // FileLP describes the LP that was solved.
 type FileLP struct {
-	Solver    string  `json:"solver"`
-	Method    string  `json:"method"`           // direct or cg (constraint generation)
-	Converged bool    `json:"converged"`        // false when constraint generation stopped early
-	Rounds    int     `json:"rounds,omitempty"` // rounds of constraint generation
-	Rows      int     `json:"rows"`
-	Columns   int     `json:"columns"`
-	Nonzeros  int     `json:"nonzeros"`
-	Objective float64 `json:"objective"` // in reading units
+	Solver    string `json:"solver"`
+	Method    string `json:"method"`           // direct or cg (constraint generation)
+	Converged bool   `json:"converged"`        // false when constraint generation stopped early
+	Rounds    int    `json:"rounds,omitempty"` // rounds of constraint generation
+	// ShippedGreedy: constraint generation stopped early with a rule
+	// worse than greedy, so the tables are greedy's.
+	ShippedGreedy bool    `json:"shipped_greedy,omitempty"`
+	Rows          int     `json:"rows"`
+	Columns       int     `json:"columns"`
+	Nonzeros      int     `json:"nonzeros"`
+	Objective     float64 `json:"objective"` // in reading units
 }
 
 // FileTable is the decision table of one group of channels.
@@ -164,7 +167,7 @@ func NewFile(s *Solution, modelTOML string) *File {
 		Unit:      m.Unit,
 		Tail:      m.Tail,
 		Layout:    FileLayout{G: l.G, S: l.S, T: l.T, D: l.D},
-		LP: FileLP{Solver: s.Solver, Method: s.Method, Converged: s.Converged, Rounds: s.Rounds, Rows: s.Rows, Columns: s.Columns, Nonzeros: s.Nonzeros,
+		LP: FileLP{Solver: s.Solver, Method: s.Method, Converged: s.Converged, Rounds: s.Rounds, ShippedGreedy: s.ShippedGreedy, Rows: s.Rows, Columns: s.Columns, Nonzeros: s.Nonzeros,
 			Objective: s.Objective * m.Step},
 		TableDen: s.TableDen,
 		ProbBits: s.ProbBits,

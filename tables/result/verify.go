@@ -126,7 +126,7 @@ func (f *File) Solution() (*Solution, error) {
 	if f.TableDen == 0 || f.TableDen > 1<<52 {
 		return nil, mismatch("table_den", "%d is not in [1, 2^52]", f.TableDen)
 	}
-	s := &Solution{Model: m, Layout: l, TableDen: f.TableDen, Solver: f.LP.Solver, Method: f.LP.Method, Converged: f.LP.Converged, Rows: f.LP.Rows, Columns: f.LP.Columns,
+	s := &Solution{Model: m, Layout: l, TableDen: f.TableDen, Solver: f.LP.Solver, Method: f.LP.Method, Converged: f.LP.Converged, Rounds: f.LP.Rounds, ShippedGreedy: f.LP.ShippedGreedy, Rows: f.LP.Rows, Columns: f.LP.Columns,
 		Nonzeros: f.LP.Nonzeros, Objective: f.LP.Objective / m.Step, ProbBits: bits}
 
 	// Tables.
