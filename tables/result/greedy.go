@@ -4,14 +4,14 @@ import (
 	"github.com/pickwise/pickwise/tables"
 )
 
-// greedyTables returns the greedy rule written as decision tables: one cell
+// GreedyTables returns the greedy rule written as decision tables: one cell
 // for every reading vector of a group at which two or more channels not
 // certainly below another share the top reading, sharing equally among
 // them. Every other reading picks the highest reading, as a table rule does
 // where it has no cell. Where greedy would give a share to a channel that
 // is certainly below another, the tables give it nothing, which never
 // raises a regret; the certificate evaluates the tables as written.
-func greedyTables(l *tables.Layout) *tables.Optimal {
+func GreedyTables(l *tables.Layout) *tables.Optimal {
 	n := l.N()
 	o := tables.NewOptimal(l)
 	r := make([]int, n)

@@ -218,7 +218,7 @@ func Solve(ctx context.Context, m *discretize.Model, opt Options) (*Solution, er
 		// outside the configurations it has seen: ship greedy's tables
 		// when their worst case is lower. The lower bound below holds
 		// for every rule.
-		gt, gden := exact.Rationalize(greedyTables(l), ProbBits)
+		gt, gden := exact.Rationalize(GreedyTables(l), ProbBits)
 		get, err := exact.NewTableDen(gt, gden)
 		if err != nil {
 			return nil, fmt.Errorf("greedy tables: %w", err)
