@@ -142,14 +142,22 @@ func (a *app) flagSet(name, synopsis, description string) *flag.FlagSet {
 // arguments, and returns the positional ones. It returns done with an exit
 // status when the command should stop (help asked, or a flag error).
 func (a *app) parse(fs *flag.FlagSet, args []string) (pos []string, status int, done bool) {
+	usage := fs.Usage
+	defer func() { fs.Usage = usage }()
 	for {
+		// The flag package prints the usage itself on -h and on errors;
+		// it is printed here instead, once: on standard output when help
+		// was asked, after the error on standard error otherwise.
+		fs.Usage = func() {}
 		err := fs.Parse(args)
+		fs.Usage = usage
 		if errors.Is(err, flag.ErrHelp) {
 			fs.SetOutput(a.stdout)
 			fs.Usage()
 			return nil, exitOK, true
 		}
 		if err != nil {
+			fs.Usage()
 			return nil, exitUsage, true
 		}
 		args = fs.Args()

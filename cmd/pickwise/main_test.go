@@ -27,9 +27,13 @@ func TestHelp(t *testing.T) {
 	}
 	for _, c := range []string{"solve", "verify", "table", "plot", "lp", "demo"} {
 		t.Run(c, func(t *testing.T) {
-			st, out, _ := run(c, "--help")
-			if st != 0 || !strings.Contains(out, "Usage: pickwise "+c) {
-				t.Errorf("%s --help: status %d, output %q", c, st, out)
+			st, out, errs := run(c, "--help")
+			if st != 0 || strings.Count(out, "Usage: pickwise "+c) != 1 || errs != "" {
+				t.Errorf("%s --help: status %d, output %q, errors %q (want the usage once, on standard output)", c, st, out, errs)
+			}
+			st, _, errs = run(c, "--no-such-flag")
+			if st != exitUsage || strings.Count(errs, "Usage: pickwise "+c) != 1 || !strings.Contains(errs, "no-such-flag") {
+				t.Errorf("%s --no-such-flag: status %d, errors %q (want the error and the usage once)", c, st, errs)
 			}
 			st2, out2, _ := run("help", c)
 			if st2 != 0 || out2 != out {
