@@ -23,15 +23,10 @@ type Worst struct {
 // (Far for channels far below): max v - sum_i v_i P[rule picks i].
 func (l *Layout) Regret(rule Rule, v []int) float64 {
 	n := l.N()
-	var q Set
+	q := SubsetOf(v)
 	top := Far
-	for i, x := range v {
-		if x > Far/2 {
-			q |= 1 << uint(i)
-			if x > top {
-				top = x
-			}
-		}
+	for _, x := range v {
+		top = max(top, x)
 	}
 	if q.Len() < 2 {
 		return 0
@@ -137,11 +132,5 @@ func (l *Layout) WorstCase(rule Rule, d int) Worst {
 			best = *r
 		}
 	}
-	w := Worst{Regret: best.regret, Values: best.v, Configurations: count}
-	for i, x := range best.v {
-		if x > Far/2 {
-			w.Subset |= 1 << uint(i)
-		}
-	}
-	return w
+	return Worst{Regret: best.regret, Values: best.v, Subset: SubsetOf(best.v), Configurations: count}
 }

@@ -182,6 +182,18 @@ func (l *Layout) Alive(a Set, r []int) Set {
 	return out
 }
 
+// SubsetOf returns the subset of a configuration or reading vector: the
+// channels whose entries are not at Far.
+func SubsetOf(v []int) Set {
+	var q Set
+	for i, x := range v {
+		if x > Far/2 {
+			q |= 1 << uint(i)
+		}
+	}
+	return q
+}
+
 // Subsets returns every subset of the n channels with at least two members,
 // ordered by size and then by mask, so that output is deterministic.
 func Subsets(n int) []Set {

@@ -83,13 +83,10 @@ func BayesRisk(l *tables.Layout, configs [][]int, w []uint64, bits uint) (*big.R
 		if w[k] == 0 {
 			continue
 		}
-		var q tables.Set
+		q := tables.SubsetOf(v)
 		lo := math.MaxInt
-		for i, x := range v {
-			if x > tables.Far/2 {
-				q |= 1 << uint(i)
-				lo = min(lo, x)
-			}
+		for _, i := range q.Members() {
+			lo = min(lo, v[i])
 		}
 		if q.Len() < 2 {
 			// A single channel has regret 0 under every sensible rule, and

@@ -140,16 +140,7 @@ func regretNumDiff(l *tables.Layout, d *diffPMF, rule Rule, v []int, out *big.In
 			r[c] = v[c] + d.e[j*m+k]
 		}
 		rule.Nums(r, q)
-		// inner = sum_c q_c (top - v_c), in 128 bits.
-		var ihi, ilo uint64
-		for _, c := range d.mem {
-			if q[c] != 0 && top != v[c] {
-				h, l := bits.Mul64(q[c], uint64(top-v[c]))
-				var cy uint64
-				ilo, cy = bits.Add64(ilo, l, 0)
-				ihi += h + cy
-			}
-		}
+		ihi, ilo := innerNum(d.mem, q, v, top)
 		if ihi == 0 && ilo == 0 {
 			continue
 		}

@@ -292,6 +292,20 @@ func (a *acc192) big(z *big.Int) *big.Int {
 	return z.Or(z, new(big.Int).SetUint64(a[0]))
 }
 
+// innerNum returns sum over the members c of q_c (top - v_c), in 128 bits:
+// the regret numerator of one reading vector whose rule numerators are q.
+func innerNum(mem []int, q []uint64, v []int, top int) (hi, lo uint64) {
+	for _, c := range mem {
+		if q[c] != 0 && top != v[c] {
+			h, l := bits.Mul64(q[c], uint64(top-v[c]))
+			var cy uint64
+			lo, cy = bits.Add64(lo, l, 0)
+			hi += h + cy
+		}
+	}
+	return hi, lo
+}
+
 // regretNum returns the integer N with regret(v) = N / (2^(52m) * den), m
 // the size of v's subset.
 func regretNum(l *tables.Layout, num [][]uint64, rule Rule, v []int, mem []int, out *big.Int) {
@@ -321,17 +335,7 @@ func regretNum(l *tables.Layout, num [][]uint64, rule Rule, v []int, mem []int, 
 			for k, pk := range num[last] {
 				r[last] = v[last] + l.Lo[last] + k
 				rule.Nums(r, q)
-				// inner = sum_c q_c (top - v_c), in 128 bits.
-				var ihi, ilo uint64
-				for _, c := range mem {
-					if q[c] != 0 && top != v[c] {
-						h, l := bits.Mul64(q[c], uint64(top-v[c]))
-						var cy uint64
-						ilo, cy = bits.Add64(ilo, l, 0)
-						ihi += h + cy
-					}
-				}
-				if ihi != 0 || ilo != 0 {
+				if ihi, ilo := innerNum(mem, q, v, top); ihi != 0 || ilo != 0 {
 					acc.addMul128(pk, ihi, ilo)
 				}
 			}
@@ -395,12 +399,7 @@ func WorstCase(l *tables.Layout, rule Rule, d int) Worst {
 // Regret returns the exact regret of rule at configuration v (tables.Far
 // outside its subset), in steps.
 func Regret(l *tables.Layout, rule Rule, v []int) *big.Rat {
-	var q tables.Set
-	for i, x := range v {
-		if x > tables.Far/2 {
-			q |= 1 << uint(i)
-		}
-	}
+	q := tables.SubsetOf(v)
 	if q.Len() < 2 {
 		return new(big.Rat)
 	}

@@ -85,12 +85,7 @@ func WorstCaseScreened(l *tables.Layout, rule Rule, d int) (Worst, error) {
 	// difference vector instead of one per joint outcome.
 	diffs := make(map[tables.Set]*diffPMF)
 	for _, v := range cands {
-		var q tables.Set
-		for i, x := range v {
-			if x > tables.Far/2 {
-				q |= 1 << uint(i)
-			}
-		}
+		q := tables.SubsetOf(v)
 		mem := q.Members()
 		dp := diffs[q]
 		if dp == nil {
