@@ -135,6 +135,12 @@ func (r *Rows) Add(idx []int, val []float64, lo, up float64) {
 	r.Up = append(r.Up, up)
 }
 
+// RowsOf returns the rows of p as a batch, sharing p's arrays (its
+// columns are ignored).
+func RowsOf(p *lp.Problem) *Rows {
+	return &Rows{Start: p.RowStart, Index: p.Index, Value: p.Value, Lo: p.RowLo, Up: p.RowUp}
+}
+
 // Len returns the number of rows in the batch.
 func (r *Rows) Len() int { return len(r.Lo) }
 

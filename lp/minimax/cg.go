@@ -214,12 +214,7 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 	// and the batch: rows of fine-step normal noise reach tens of
 	// thousands of cells each.
 	init, _, _, err := worst(tables.Greedy{}, -1, func(q tables.Set) int {
-		d := f.diffs[q]
-		if d == nil {
-			d = l.Differences(q)
-			f.diffs[q] = d
-		}
-		return min(batch, max(8, 500000/max(d.Len(), 1)))
+		return min(batch, max(8, 500000/max(f.differences(q).Len(), 1)))
 	})
 	if err != nil {
 		return nil, err

@@ -24,7 +24,7 @@ type stopAt struct {
 
 func (s *stopAt) AddColumns(lo, up, obj []float64) error { return s.m.AddColumns(lo, up, obj) }
 func (s *stopAt) AddRows(p *lp.Problem) error {
-	return s.m.AddRows(&clp.Rows{Start: p.RowStart, Index: p.Index, Value: p.Value, Lo: p.RowLo, Up: p.RowUp})
+	return s.m.AddRows(clp.RowsOf(p))
 }
 func (s *stopAt) Close() { s.m.Close() }
 func (s *stopAt) Solve(ctx context.Context) (*lp.Solution, error) {

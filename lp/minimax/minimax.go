@@ -238,6 +238,17 @@ func (f *Formulation) addOrbit(g, alive tables.Set, r []int) int {
 	return f.Tables.Table(g).Lookup(r)
 }
 
+// differences returns the noise difference pmf of subset q, built on
+// first use.
+func (f *Formulation) differences(q tables.Set) *tables.Differences {
+	d := f.diffs[q]
+	if d == nil {
+		d = f.Layout.Differences(q)
+		f.diffs[q] = d
+	}
+	return d
+}
+
 // regretRow returns the regret row of configuration v (without the -t
 // entry): column indices in increasing order, coefficients, and the
 // constant of the forced outcomes. Cells met for the first time are added
@@ -245,22 +256,12 @@ func (f *Formulation) addOrbit(g, alive tables.Set, r []int) int {
 func (f *Formulation) regretRow(v []int, create bool, idx []int, val []float64) ([]int, []float64, float64, error) {
 	l := f.Layout
 	n := l.N()
-	var q tables.Set
-	top := tables.Far
-	for i, x := range v {
-		if x > tables.Far/2 {
-			q |= 1 << uint(i)
-			top = max(top, x)
-		}
-	}
+	q := tables.SubsetOf(v)
+	top := slices.Max(v)
 	var forced float64
 	var err error
 	r := f.r
-	diff := f.diffs[q]
-	if diff == nil {
-		diff = l.Differences(q)
-		f.diffs[q] = diff
-	}
+	diff := f.differences(q)
 	for k := 0; k < diff.Len() && err == nil; k++ {
 		a, prob := diff.Point(k), diff.Prob[k]
 		for i := range r {

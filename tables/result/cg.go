@@ -26,7 +26,7 @@ func newCLPIncremental(tol float64) func(p *lp.Problem) (minimax.Incremental, er
 func (c clpIncremental) AddColumns(lo, up, obj []float64) error { return c.m.AddColumns(lo, up, obj) }
 
 func (c clpIncremental) AddRows(p *lp.Problem) error {
-	return c.m.AddRows(&clp.Rows{Start: p.RowStart, Index: p.Index, Value: p.Value, Lo: p.RowLo, Up: p.RowUp})
+	return c.m.AddRows(clp.RowsOf(p))
 }
 
 func (c clpIncremental) Solve(ctx context.Context) (*lp.Solution, error) { return c.m.Solve(ctx) }

@@ -202,37 +202,24 @@ func Solve(ctx context.Context, m *discretize.Model, opt Options) (*Solution, er
 	s.Objective, s.Iterations = sol.Objective, sol.Iterations
 
 	t2 := time.Now()
-	s.Tables, s.TableDen = exact.Rationalize(f.Tables, ProbBits)
-	et, err := exact.NewTableDen(s.Tables, s.TableDen)
-	if err != nil {
-		return nil, fmt.Errorf("snapped table: %w", err)
+	if s.Tables, s.TableDen, s.Optimal, err = certifyTables(l, f.Tables); err != nil {
+		return nil, fmt.Errorf("certifying the tables: %w", err)
 	}
-	up, err := exact.WorstCaseScreened(l, et, l.D)
-	if err != nil {
-		return nil, err
-	}
-	s.Upper = up.Regret
-	s.Optimal = Figure{Regret: up.Regret, Worst: up.Values}
 	if !s.Converged {
 		// Stopped early, the LP's rule can be far worse than greedy
 		// outside the configurations it has seen: ship greedy's tables
 		// when their worst case is lower. The lower bound below holds
 		// for every rule.
-		gt, gden := exact.Rationalize(GreedyTables(l), ProbBits)
-		get, err := exact.NewTableDen(gt, gden)
+		gt, gden, gfig, err := certifyTables(l, GreedyTables(l))
 		if err != nil {
 			return nil, fmt.Errorf("greedy tables: %w", err)
 		}
-		gup, err := exact.WorstCaseScreened(l, get, l.D)
-		if err != nil {
-			return nil, err
-		}
-		if gup.Regret.Cmp(s.Upper) < 0 {
-			s.Tables, s.TableDen, s.Upper = gt, gden, gup.Regret
-			s.Optimal = Figure{Regret: gup.Regret, Worst: gup.Values}
+		if gfig.Regret.Cmp(s.Optimal.Regret) < 0 {
+			s.Tables, s.TableDen, s.Optimal = gt, gden, gfig
 			s.ShippedGreedy = true
 		}
 	}
+	s.Upper = s.Optimal.Regret
 
 	if sol.RowDual == nil {
 		return nil, fmt.Errorf("the %s backend gave no dual solution: the lower bound needs one", solver.Name())
@@ -260,6 +247,22 @@ func Solve(ctx context.Context, m *discretize.Model, opt Options) (*Solution, er
 	}
 	s.Timing.Heuristics = time.Since(t3)
 	return s, nil
+}
+
+// certifyTables snaps the probabilities of o to exact fractions
+// (exact.Rationalize) and returns the snapped tables, their common
+// denominator and their exact worst case.
+func certifyTables(l *tables.Layout, o *tables.Optimal) (*tables.Optimal, uint64, Figure, error) {
+	t, den := exact.Rationalize(o, ProbBits)
+	et, err := exact.NewTableDen(t, den)
+	if err != nil {
+		return nil, 0, Figure{}, err
+	}
+	w, err := exact.WorstCaseScreened(l, et, l.D)
+	if err != nil {
+		return nil, 0, Figure{}, err
+	}
+	return t, den, Figure{Regret: w.Regret, Worst: w.Values}, nil
 }
 
 // GreedyWidth returns the widening, in steps, that evaluating the greedy
