@@ -144,28 +144,13 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 
 	// pending collects the rows of configurations to add.
 	pending := &lp.Problem{}
-	var idx []int
-	var val []float64
-	add := func(v []int) error {
+	add := func(v []int) {
 		v = canon(v)
 		k := keyOf(v)
-		if inSet[k] {
-			return nil
+		if !inSet[k] {
+			inSet[k] = true
+			f.addRegretRow(v, pending)
 		}
-		inSet[k] = true
-		var forced float64
-		var err error
-		idx, val, forced, err = f.regretRow(v, true, idx, val)
-		if err != nil {
-			return err
-		}
-		idx = append(idx, 0)
-		val = append(val, -1)
-		row := f.Problem.AddRow(idx, val, math.Inf(-1), -forced)
-		pending.AddRow(idx, val, math.Inf(-1), -forced)
-		f.RowOf = append(f.RowOf, row)
-		f.Configs = append(f.Configs, v...)
-		return nil
 	}
 
 	// worst collects, per subset, the configurations of rule with the
@@ -220,9 +205,7 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 		return nil, err
 	}
 	for _, s := range init {
-		if err := add(s.v); err != nil {
-			return nil, err
-		}
+		add(s.v)
 	}
 	f.addCellRowsFrom(1, nil)
 	cols := f.Problem.NumCols()
@@ -275,9 +258,7 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 			return nil, err
 		}
 		for _, s := range viol {
-			if err := add(s.v); err != nil {
-				return nil, err
-			}
+			add(s.v)
 		}
 		if p := f.Problem; p.NumCols() > cols {
 			if err := model.AddColumns(p.ColLo[cols:], p.ColUp[cols:], p.Obj[cols:]); err != nil {

@@ -61,6 +61,8 @@ type Formulation struct {
 	sym   *symmetry
 	diffs map[tables.Set]*tables.Differences
 	// scratch for rows
+	idx     []int
+	val     []float64
 	acc     []float64
 	touched []int
 	r       []int
@@ -251,18 +253,16 @@ func (f *Formulation) differences(q tables.Set) *tables.Differences {
 
 // regretRow returns the regret row of configuration v (without the -t
 // entry): column indices in increasing order, coefficients, and the
-// constant of the forced outcomes. Cells met for the first time are added
-// when create is set; otherwise a missing cell is an error.
-func (f *Formulation) regretRow(v []int, create bool, idx []int, val []float64) ([]int, []float64, float64, error) {
+// constant of the forced outcomes. Cells met for the first time are added.
+func (f *Formulation) regretRow(v []int, idx []int, val []float64) ([]int, []float64, float64) {
 	l := f.Layout
 	n := l.N()
 	q := tables.SubsetOf(v)
 	top := slices.Max(v)
 	var forced float64
-	var err error
 	r := f.r
 	diff := f.differences(q)
-	for k := 0; k < diff.Len() && err == nil; k++ {
+	for k := 0; k < diff.Len(); k++ {
 		a, prob := diff.Point(k), diff.Prob[k]
 		for i := range r {
 			r[i] = v[i] + a[i]
@@ -283,10 +283,6 @@ func (f *Formulation) regretRow(v []int, create bool, idx []int, val []float64) 
 		t := f.Tables.Table(g)
 		ci := t.Lookup(r)
 		if ci < 0 {
-			if !create {
-				err = fmt.Errorf("minimax: configuration %v reaches a cell of group %v that has no column", v, t.Members)
-				continue
-			}
 			ci = f.addOrbit(g, alive, r)
 		}
 		m := len(t.Members)
@@ -314,7 +310,21 @@ func (f *Formulation) regretRow(v []int, create bool, idx []int, val []float64) 
 		f.acc[c] = 0
 	}
 	f.touched = f.touched[:0]
-	return idx, val, forced, err
+	return idx, val, forced
+}
+
+// addRegretRow appends the regret row of configuration v (with its -t
+// entry) to the problem, and to also when it is not nil, and records v.
+func (f *Formulation) addRegretRow(v []int, also *lp.Problem) {
+	var forced float64
+	f.idx, f.val, forced = f.regretRow(v, f.idx, f.val)
+	f.idx = append(f.idx, 0)
+	f.val = append(f.val, -1)
+	f.RowOf = append(f.RowOf, f.Problem.AddRow(f.idx, f.val, math.Inf(-1), -forced))
+	if also != nil {
+		also.AddRow(f.idx, f.val, math.Inf(-1), -forced)
+	}
+	f.Configs = append(f.Configs, v...)
 }
 
 // Build returns the direct LP of layout l: a regret row for every
@@ -330,10 +340,6 @@ func Build(l *tables.Layout, opt Options) (*Formulation, error) {
 	}
 	n := l.N()
 	f := newFormulation(l, opt.NoSymmetry)
-	p := f.Problem
-	var idx []int
-	var val []float64
-	var err error
 	w := make([]int, n)
 	for _, q := range tables.Subsets(n) {
 		tables.Configurations(n, q, l.D, func(v []int) bool {
@@ -343,20 +349,9 @@ func Build(l *tables.Layout, opt Options) (*Formulation, error) {
 					return true
 				}
 			}
-			var forced float64
-			idx, val, forced, err = f.regretRow(v, true, idx, val)
-			if err != nil {
-				return false
-			}
-			idx = append(idx, 0)
-			val = append(val, -1)
-			f.RowOf = append(f.RowOf, p.AddRow(idx, val, math.Inf(-1), -forced))
-			f.Configs = append(f.Configs, v...)
+			f.addRegretRow(v, nil)
 			return true
 		})
-		if err != nil {
-			return nil, err
-		}
 	}
 	f.addCellRows()
 	return f, nil
