@@ -55,6 +55,11 @@ type CGOptions struct {
 	Progress func(Progress)
 	// Evaluator evaluates rules at every configuration.
 	Evaluator fast.Evaluator
+	// Radius spreads the configurations added in a round: of two
+	// violated configurations within Radius steps of each other in every
+	// channel, only the more violated is added. Zero means a quarter of
+	// the smallest noise spread; negative means no spreading.
+	Radius int
 	// NoSymmetry ignores that channels with identical noise are
 	// interchangeable (see Options.NoSymmetry).
 	NoSymmetry bool
@@ -91,6 +96,17 @@ func solveBy(ctx context.Context, m Incremental, deadline time.Time) (*lp.Soluti
 		defer cancel()
 	}
 	return m.Solve(ctx)
+}
+
+// near reports whether configurations u and v differ by at most r steps in
+// every channel (Far in the same channels).
+func near(u, v []int, r int) bool {
+	for i := range u {
+		if d := u[i] - v[i]; d > r || d < -r {
+			return false
+		}
+	}
+	return true
 }
 
 // configKey identifies a configuration by its values (tables.Far outside
@@ -141,6 +157,14 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 		return cv
 	}
 	inSet := make(map[configKey]bool)
+	radius := opt.Radius
+	if radius == 0 {
+		w := l.Hi[0] - l.Lo[0]
+		for i := range l.Lo {
+			w = min(w, l.Hi[i]-l.Lo[i])
+		}
+		radius = w / 4
+	}
 
 	// pending collects the rows of configurations to add.
 	pending := &lp.Problem{}
@@ -159,7 +183,7 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 		v   []int
 		reg float64
 	}
-	worst := func(rule tables.Rule, threshold float64, sizeOf func(tables.Set) int) ([]scored, float64, int, error) {
+	worst := func(rule tables.Rule, threshold float64, radius int, sizeOf func(tables.Set) int) ([]scored, float64, int, error) {
 		var out []scored
 		top := 0.0
 		count := 0
@@ -176,6 +200,22 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 				count++
 				if len(list) == size && reg <= list[size-1].reg {
 					return
+				}
+				// Keep the list spread out: of configurations within
+				// the radius of each other only the most violated
+				// stays, so that one round reaches every region where
+				// the rule is bad, not just the neighbours of the
+				// worst configuration.
+				if radius > 0 {
+					for i := range list {
+						if near(list[i].v, v, radius) {
+							if reg <= list[i].reg {
+								return
+							}
+							list = append(list[:i], list[i+1:]...)
+							break
+						}
+					}
 				}
 				if len(list) == size {
 					list = list[:size-1]
@@ -198,7 +238,7 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 	// has about two per point of the subset's difference pmf), between 8
 	// and the batch: rows of fine-step normal noise reach tens of
 	// thousands of cells each.
-	init, _, _, err := worst(tables.Greedy{}, -1, func(q tables.Set) int {
+	init, _, _, err := worst(tables.Greedy{}, -1, radius, func(q tables.Set) int {
 		return min(batch, max(8, 500000/max(f.differences(q).Len(), 1)))
 	})
 	if err != nil {
@@ -215,6 +255,15 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 		return nil, err
 	}
 	defer model.Close()
+	if pm, ok := model.(interface{ Prefer(func(col int) float64) }); ok {
+		// Where nothing decides between a cell's channels, prefer the
+		// highest reading, as a cell without columns does.
+		pm.Prefer(func(col int) float64 {
+			v := f.Vars[col-1]
+			t := f.Tables.Table(v.Group)
+			return -float64(t.Cells[v.Cell].Diff[v.Channel])
+		})
+	}
 	pending = &lp.Problem{}
 
 	res := &CGResult{F: f}
@@ -238,7 +287,7 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 		}
 		f.Apply(sol.X)
 		threshold := sol.Objective*(1+tol) + 1e-12
-		viol, top, count, err := worst(f.Tables, threshold, func(tables.Set) int { return batch })
+		viol, top, count, err := worst(f.Tables, threshold, radius, func(tables.Set) int { return batch })
 		if err != nil {
 			return nil, err
 		}

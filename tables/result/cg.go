@@ -5,6 +5,7 @@ import (
 
 	"github.com/pickwise/pickwise/lp"
 	"github.com/pickwise/pickwise/lp/clp"
+	"github.com/pickwise/pickwise/lp/dw"
 	"github.com/pickwise/pickwise/lp/minimax"
 )
 
@@ -32,3 +33,8 @@ func (c clpIncremental) AddRows(p *lp.Problem) error {
 func (c clpIncremental) Solve(ctx context.Context) (*lp.Solution, error) { return c.m.Solve(ctx) }
 
 func (c clpIncremental) Close() { c.m.Close() }
+
+// newDWIncremental loads p into a decomposition model (lp/dw).
+func newDWIncremental(p *lp.Problem) (minimax.Incremental, error) {
+	return dw.New(p)
+}

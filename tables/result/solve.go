@@ -59,7 +59,17 @@ type Options struct {
 	// noise are interchangeable (minimax.Options.NoSymmetry); the answer
 	// is the same, the LP larger.
 	NoSymmetry bool
+	// Master chooses how constraint generation solves the LP over its
+	// working set: MasterDW (the zero value "" means it), by Dantzig–Wolfe
+	// decomposition (lp/dw), or MasterCLP, the whole LP by CLP's simplex.
+	Master string
 }
+
+// Ways of solving the working-set LP of constraint generation.
+const (
+	MasterDW  = "dw"
+	MasterCLP = "clp"
+)
 
 // Figure is the exact worst-case regret of a rule.
 type Figure struct {
@@ -188,7 +198,16 @@ func Solve(ctx context.Context, m *discretize.Model, opt Options) (*Solution, er
 		if opt.TimeLimit > 0 {
 			cg.Deadline = t0.Add(opt.TimeLimit)
 		}
-		res, err := minimax.SolveCG(ctx, l, newCLPIncremental(tolerance), cg)
+		var inner func(*lp.Problem) (minimax.Incremental, error)
+		switch opt.Master {
+		case "", MasterDW:
+			inner = newDWIncremental
+		case MasterCLP:
+			inner = newCLPIncremental(tolerance)
+		default:
+			return nil, fmt.Errorf("unknown working-set solver %q (want %s or %s)", opt.Master, MasterDW, MasterCLP)
+		}
+		res, err := minimax.SolveCG(ctx, l, inner, cg)
 		if err != nil {
 			return nil, err
 		}

@@ -1,0 +1,579 @@
+// Package dw solves minimax linear programs over a product of simplices by
+// Dantzig–Wolfe decomposition.
+//
+// The programs it takes have the form
+//
+//	minimise    t
+//	subject to  a_v·x - t <= b_v          for every linking row v
+//	            sum_j m_j x_j = 1         over the columns j of each block
+//	            x >= 0
+//
+// with t in column 0. Every column other than t belongs to exactly one
+// block, whose row has positive coefficients m_j and right-hand side 1: the
+// feasible x form a product of simplices, one per block, and their extreme
+// points are the choices of one column per block ("pure" points). The
+// minimax-regret LPs of pickwise have this form: a block is a table cell, a
+// linking row is the regret of a configuration.
+//
+// Instead of handing the whole program to a simplex code, whose rows can
+// hold tens of thousands of entries each, a Model keeps a small master
+// program over the priors π on the linking rows (Kelley's cutting planes
+// on the concave function π ↦ min_x Σ_v π_v (a_v·x - b_v), stabilised by
+// Wentges' smoothing):
+//
+//	maximise    σ
+//	subject to  σ <= Σ_v π_v R_j(v)   for every pure point j found so far
+//	            Σ_v π_v = 1, π >= 0
+//
+// where R_j(v) = a_v·x^j - b_v. The pure point that minimises the prior's
+// expected row value is found block by block (pricing), and its value is a
+// lower bound on the program's optimum; the master's optimum σ is an upper
+// bound, reached by the mixture of pure points that the master's duals
+// give. A solve ends when the two meet within the tolerance. The master is
+// solved by COIN-OR CLP (lp/clp) and grows by one row per pure point.
+package dw
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"math"
+	"os"
+	"runtime"
+	"slices"
+	"sync"
+	"time"
+
+	"github.com/pickwise/pickwise/lp"
+	"github.com/pickwise/pickwise/lp/clp"
+)
+
+// Model is a minimax program of the package's form, solved by
+// decomposition. Rows and columns can be appended between solves; pure
+// points found earlier are kept and extended to new blocks, so later
+// solves start where earlier ones ended. A Model is not safe for concurrent
+// use.
+type Model struct {
+	// Tol is the relative tolerance of a solve: it ends when the master's
+	// optimum exceeds the best lower bound by at most
+	// Tol*max(1, |optimum|). Zero means 1e-11.
+	Tol float64
+	// Smoothing is Wentges' weight of the best prior so far in the prior
+	// that is priced: 0 is Kelley's plain cutting planes. Zero means 0.5;
+	// a negative value means 0.
+	Smoothing float64
+	// MaxIterations bounds the pricing rounds of one solve (zero: 100000).
+	MaxIterations int
+
+	ncols int     // columns of the program, t included
+	block []int32 // block of each column (-1: t, or not yet in a block)
+	mult  []float64
+
+	// blocks, in the order their rows came: columns and program row.
+	bstart []int   // block k has columns bcols[bstart[k]:bstart[k+1]]
+	bcols  []int32 // columns of the blocks
+	brow   []int   // program row of each block
+
+	// linking rows: entries without t, right-hand side, program row.
+	lstart []int
+	lidx   []int32
+	lval   []float64
+	lb     []float64
+	lrow   []int
+
+	nrows int // rows of the program
+
+	points []*point // pure points in the master, in master row order
+	master *clp.Model
+	stale  bool // the master must be rebuilt before the next solve
+
+	center []float64 // the prior of the best lower bound, per linking row
+	bestLB float64
+	iters  int
+	cost   []float64 // scratch: reduced cost per column
+	avg    []float64 // cost per column under the uniform prior (nil: to compute)
+	prefer func(col int) float64
+	pref   []float64 // prefer's score per column, as far as computed
+	xs     []float64 // scratch: a pure point's x
+}
+
+// Prefer sets the order in which ties of pricing are broken: of the
+// columns of a block that are cheapest under the prior, the one with the
+// least score(col) is chosen. Without it, ties go to the column cheapest
+// on average over all linking rows.
+func (m *Model) Prefer(score func(col int) float64) { m.prefer = score }
+
+// point is a pure point: the chosen position in each block, and its row
+// values R(v) = a_v·x - b_v over the linking rows.
+type point struct {
+	pick []uint8 // position within the block of the chosen column
+	r    []float64
+}
+
+// New returns a model of program p (see the package comment for the form
+// it must have).
+func New(p *lp.Problem) (*Model, error) {
+	m := &Model{bestLB: math.Inf(-1)}
+	if len(p.Obj) == 0 {
+		return nil, errors.New("dw: the program has no columns")
+	}
+	if p.Obj[0] != 1 || !math.IsInf(p.ColUp[0], 1) {
+		return nil, fmt.Errorf("dw: column 0 must be t, with cost 1 and no upper bound (cost %g, upper bound %g)", p.Obj[0], p.ColUp[0])
+	}
+	if err := m.AddColumns(p.ColLo[1:], p.ColUp[1:], p.Obj[1:]); err != nil {
+		return nil, err
+	}
+	m.ncols++ // t
+	m.block = append([]int32{-1}, m.block...)
+	m.mult = append([]float64{0}, m.mult...)
+	if err := m.AddRows(p); err != nil {
+		return nil, err
+	}
+	return m, nil
+}
+
+// AddColumns appends len(lo) columns x_j with bounds [0, +inf) and cost 0
+// (the only ones the form allows); a later AddRows must put each in a
+// block.
+func (m *Model) AddColumns(lo, up, obj []float64) error {
+	if len(up) != len(lo) || len(obj) != len(lo) {
+		return fmt.Errorf("dw: adding columns: %d lower bounds, %d upper bounds, %d costs", len(lo), len(up), len(obj))
+	}
+	for k := range lo {
+		if lo[k] != 0 || !math.IsInf(up[k], 1) || obj[k] != 0 {
+			return fmt.Errorf("dw: column %d has bounds [%g, %g] and cost %g; want [0, +Inf) and 0", m.ncols+k, lo[k], up[k], obj[k])
+		}
+	}
+	m.ncols += len(lo)
+	for range lo {
+		m.block = append(m.block, -1)
+		m.mult = append(m.mult, 0)
+	}
+	return nil
+}
+
+// AddRows appends the rows of p (its columns are ignored): each is either a
+// linking row (t's entry -1, no lower bound) or the row of a new block
+// (equal to 1, positive coefficients on columns in no block yet).
+func (m *Model) AddRows(p *lp.Problem) error {
+	for i := range p.NumRows() {
+		lo, up := p.RowLo[i], p.RowUp[i]
+		idx, val := p.Index[p.RowStart[i]:p.RowStart[i+1]], p.Value[p.RowStart[i]:p.RowStart[i+1]]
+		row := m.nrows + i
+		linking := false
+		for e, j := range idx {
+			if j < 0 || int(j) >= m.ncols {
+				return fmt.Errorf("dw: row %d: column %d out of range (%d columns)", row, j, m.ncols)
+			}
+			if j == 0 {
+				if val[e] != -1 {
+					return fmt.Errorf("dw: row %d: t has coefficient %g, want -1", row, val[e])
+				}
+				linking = true
+			}
+		}
+		if linking {
+			if !math.IsInf(lo, -1) || math.IsInf(up, 0) || math.IsNaN(up) {
+				return fmt.Errorf("dw: linking row %d has bounds [%g, %g]; want (-Inf, finite]", row, lo, up)
+			}
+			if len(m.lstart) == 0 {
+				m.lstart = append(m.lstart, 0)
+			}
+			for e, j := range idx {
+				if j != 0 {
+					m.lidx = append(m.lidx, j)
+					m.lval = append(m.lval, val[e])
+				}
+			}
+			m.lstart = append(m.lstart, len(m.lidx))
+			m.lb = append(m.lb, up)
+			m.lrow = append(m.lrow, row)
+			continue
+		}
+		if lo != 1 || up != 1 {
+			return fmt.Errorf("dw: block row %d has bounds [%g, %g]; want [1, 1]", row, lo, up)
+		}
+		if len(idx) == 0 || len(idx) > math.MaxUint8 {
+			return fmt.Errorf("dw: block row %d has %d columns; want 1 to %d", row, len(idx), math.MaxUint8)
+		}
+		b := int32(len(m.brow))
+		if len(m.bstart) == 0 {
+			m.bstart = append(m.bstart, 0)
+		}
+		for e, j := range idx {
+			if m.block[j] >= 0 {
+				return fmt.Errorf("dw: block row %d: column %d is already in block row %d", row, j, m.brow[m.block[j]])
+			}
+			if !(val[e] > 0) || math.IsInf(val[e], 1) {
+				return fmt.Errorf("dw: block row %d: column %d has coefficient %g; want positive", row, j, val[e])
+			}
+			m.block[j] = b
+			m.mult[j] = val[e]
+			m.bcols = append(m.bcols, j)
+		}
+		m.bstart = append(m.bstart, len(m.bcols))
+		m.brow = append(m.brow, row)
+		// Points found before the block existed choose its first column.
+		for _, pt := range m.points {
+			pt.pick = append(pt.pick, 0)
+		}
+	}
+	m.nrows += p.NumRows()
+	m.stale = true
+	m.avg = nil
+	return nil
+}
+
+// Close frees the master program.
+func (m *Model) Close() {
+	if m.master != nil {
+		m.master.Close()
+		m.master = nil
+	}
+}
+
+// nlink returns the number of linking rows.
+func (m *Model) nlink() int { return len(m.lb) }
+
+// check reports a column that is in no block.
+func (m *Model) check() error {
+	for j := 1; j < m.ncols; j++ {
+		if m.block[j] < 0 {
+			return fmt.Errorf("dw: column %d is in no block", j)
+		}
+	}
+	if m.nlink() == 0 {
+		return errors.New("dw: the program has no linking rows")
+	}
+	return nil
+}
+
+// rowValues returns R(v) = a_v·x - b_v of pure point pt for the linking
+// rows from..nlink-1, appended to dst.
+func (m *Model) rowValues(pt *point, from int, dst []float64) []float64 {
+	if len(m.xs) < m.ncols {
+		m.xs = make([]float64, m.ncols)
+	}
+	x := m.xs[:m.ncols]
+	for b, at := range pt.pick {
+		j := m.bcols[m.bstart[b]+int(at)]
+		x[j] = 1 / m.mult[j]
+	}
+	k := m.nlink()
+	out := make([]float64, k-from)
+	parallelRange(k-from, func(lo, hi int) {
+		for v := from + lo; v < from+hi; v++ {
+			s := -m.lb[v]
+			idx, val := m.lidx[m.lstart[v]:m.lstart[v+1]], m.lval[m.lstart[v]:m.lstart[v+1]]
+			for e, j := range idx {
+				s += val[e] * x[j]
+			}
+			out[v-from] = s
+		}
+	})
+	for b, at := range pt.pick {
+		x[m.bcols[m.bstart[b]+int(at)]] = 0
+	}
+	return append(dst, out...)
+}
+
+// parallelRange calls f on consecutive parts of [0, n), in parallel.
+func parallelRange(n int, f func(lo, hi int)) {
+	workers := min(runtime.GOMAXPROCS(0), max(1, n/16))
+	if workers <= 1 {
+		f(0, n)
+		return
+	}
+	var wg sync.WaitGroup
+	for w := range workers {
+		lo, hi := n*w/workers, n*(w+1)/workers
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			f(lo, hi)
+		}()
+	}
+	wg.Wait()
+}
+
+// price returns the pure point that minimises Σ_v π_v R(v) and that
+// minimum, a lower bound on the program's optimum when π is a prior.
+func (m *Model) price(pi []float64) (*point, float64) {
+	if len(m.cost) < m.ncols {
+		m.cost = make([]float64, m.ncols)
+	}
+	c := m.cost[:m.ncols]
+	clear(c)
+	val := 0.0
+	for v, w := range pi {
+		if w <= 0 {
+			continue
+		}
+		val -= w * m.lb[v]
+		for e := m.lstart[v]; e < m.lstart[v+1]; e++ {
+			c[m.lidx[e]] += w * m.lval[e]
+		}
+	}
+	// Of the columns that minimise a block's cost, pick the one best on
+	// average over all linking rows: blocks that no row of the prior
+	// reaches then choose sensibly instead of arbitrarily.
+	if m.prefer == nil && len(m.avg) < m.ncols {
+		m.average()
+	}
+	for j := len(m.pref); m.prefer != nil && j < m.ncols; j++ {
+		sc := 0.0
+		if j > 0 {
+			sc = m.prefer(j)
+		}
+		m.pref = append(m.pref, sc)
+	}
+	pt := &point{pick: make([]uint8, len(m.brow))}
+	for b := range m.brow {
+		cols := m.bcols[m.bstart[b]:m.bstart[b+1]]
+		best := math.Inf(1)
+		for _, j := range cols {
+			best = math.Min(best, c[j]/m.mult[j])
+		}
+		val += best
+		tie := best + 1e-12*math.Abs(best)
+		at, second := 0, math.Inf(1)
+		for k, j := range cols {
+			if c[j]/m.mult[j] > tie {
+				continue
+			}
+			var sec float64
+			if m.prefer != nil {
+				sec = m.pref[j]
+			} else {
+				sec = m.avg[j] / m.mult[j]
+			}
+			if sec < second {
+				at, second = k, sec
+			}
+		}
+		pt.pick[b] = uint8(at)
+	}
+	pt.r = m.rowValues(pt, 0, nil)
+	return pt, val
+}
+
+// average sets avg to the columns' costs under the uniform prior on the
+// linking rows.
+func (m *Model) average() {
+	m.avg = make([]float64, m.ncols)
+	w := 1 / float64(m.nlink())
+	for e, j := range m.lidx {
+		m.avg[j] += w * m.lval[e]
+	}
+}
+
+// rebuild loads a new master with the kept points.
+func (m *Model) rebuild() error {
+	if m.master != nil {
+		m.master.Close()
+		m.master = nil
+	}
+	k := m.nlink()
+	for _, pt := range m.points {
+		pt.r = m.rowValues(pt, len(pt.r), pt.r)
+	}
+	p := &lp.Problem{}
+	p.AddCol(-1, math.Inf(-1), math.Inf(1)) // σ
+	idx := make([]int, k)
+	one := make([]float64, k)
+	for v := range k {
+		p.AddCol(0, 0, math.Inf(1))
+		idx[v] = v + 1
+		one[v] = 1
+	}
+	p.AddRow(idx, one, 1, 1)
+	for _, pt := range m.points {
+		m.addCut(p, pt)
+	}
+	mm, err := clp.NewModel(p)
+	if err != nil {
+		return fmt.Errorf("dw: master: %w", err)
+	}
+	mm.Resolve = clp.Dual
+	mm.PrimalTolerance, mm.DualTolerance = 1e-10, 1e-10
+	m.master, m.stale = mm, false
+	return nil
+}
+
+// addCut appends the row σ - Σ_v R(v) π_v <= 0 of pt to p.
+func (m *Model) addCut(p interface {
+	AddRow([]int, []float64, float64, float64) int
+}, pt *point) {
+	idx := make([]int, 0, len(pt.r)+1)
+	val := make([]float64, 0, len(pt.r)+1)
+	idx = append(idx, 0)
+	val = append(val, 1)
+	for v, r := range pt.r {
+		if r != 0 {
+			idx = append(idx, v+1)
+			val = append(val, -r)
+		}
+	}
+	p.AddRow(idx, val, math.Inf(-1), 0)
+}
+
+// cutRows adapts clp.Rows to addCut.
+type cutRows struct{ clp.Rows }
+
+func (r *cutRows) AddRow(idx []int, val []float64, lo, up float64) int {
+	r.Add(idx, val, lo, up)
+	return r.Len() - 1
+}
+
+// Solve solves the program from where the last solve ended. The solution's
+// X holds t (the master's optimum) and the mixture of pure points; its
+// RowDual holds minus the best prior found on the linking rows (the duals
+// a simplex code would give there, up to the tolerance) and 0 on the block
+// rows. Objective is the master's optimum: an upper bound on the program's
+// optimum, within the tolerance of it.
+func (m *Model) Solve(ctx context.Context) (*lp.Solution, error) {
+	if err := m.check(); err != nil {
+		return nil, err
+	}
+	tol := m.Tol
+	if tol == 0 {
+		tol = 1e-11
+	}
+	alpha := m.Smoothing
+	switch {
+	case alpha == 0:
+		alpha = 0.5
+	case alpha < 0:
+		alpha = 0
+	}
+	maxIt := m.MaxIterations
+	if maxIt == 0 {
+		maxIt = 100000
+	}
+	k := m.nlink()
+	if m.stale {
+		// The best lower bound so far still holds: its prior puts no
+		// weight on the new linking rows, and the old rows do not reach
+		// the new blocks.
+		m.center = append(m.center, make([]float64, k-len(m.center))...)
+		if len(m.points) == 0 {
+			uniform := make([]float64, k)
+			for v := range uniform {
+				uniform[v] = 1 / float64(k)
+			}
+			pt, lb := m.price(uniform)
+			m.points = append(m.points, pt)
+			m.bestLB = lb
+			copy(m.center, uniform)
+		}
+		if err := m.rebuild(); err != nil {
+			return nil, err
+		}
+	}
+	var sigma float64
+	var pi, lambda []float64
+	t0 := time.Now()
+	nit := 0
+	defer func() {
+		if os.Getenv("DWDEBUG") != "" {
+			fmt.Fprintf(os.Stderr, "dw: %d rows %d blocks %d points %d its lb %.12g sigma %.12g %v\n", m.nlink(), len(m.brow), len(m.points), nit, m.bestLB, sigma, time.Since(t0))
+		}
+	}()
+	for it := 0; ; it++ {
+		nit = it
+		if err := ctx.Err(); err != nil {
+			return nil, fmt.Errorf("dw: %w", err)
+		}
+		sol, err := m.master.Solve(ctx)
+		if err != nil {
+			return nil, fmt.Errorf("dw: master (%d points): %w", len(m.points), err)
+		}
+		m.iters += sol.Iterations
+		sigma = -sol.Objective
+		pi = sol.X[1 : k+1]
+		lambda = sol.RowDual[1:]
+		if sigma-m.bestLB <= tol*math.Max(1, math.Abs(sigma)) {
+			break
+		}
+		if it >= maxIt {
+			return nil, fmt.Errorf("dw: no convergence in %d pricing rounds (master %g, lower bound %g)", maxIt, sigma, m.bestLB)
+		}
+		// Price at the smoothed prior; when its point does not cut off
+		// the master's prior (a mispricing), price at that prior too.
+		sep := pi
+		if !math.IsInf(m.bestLB, -1) && alpha > 0 {
+			sep = make([]float64, k)
+			for v := range sep {
+				sep[v] = alpha*m.center[v] + (1-alpha)*pi[v]
+			}
+		}
+		cr := &cutRows{}
+		smoothed := &sep[0] != &pi[0]
+		for {
+			pt, lb := m.price(sep)
+			if lb > m.bestLB {
+				m.bestLB = lb
+				copy(m.center, sep)
+			}
+			m.points = append(m.points, pt)
+			m.addCut(cr, pt)
+			var at float64
+			for v, w := range pi {
+				at += w * pt.r[v]
+			}
+			if at < sigma-tol*math.Max(1, math.Abs(sigma)) || !smoothed {
+				break
+			}
+			sep, smoothed = pi, false
+		}
+		if err := m.master.AddRows(&cr.Rows); err != nil {
+			return nil, fmt.Errorf("dw: master: %w", err)
+		}
+	}
+	// The mixture: λ_j on pure point j.
+	x := make([]float64, m.ncols)
+	x[0] = sigma
+	var s float64
+	for j, pt := range m.points {
+		w := -lambda[j]
+		if w <= 0 {
+			continue
+		}
+		s += w
+		for b, at := range pt.pick {
+			col := m.bcols[m.bstart[b]+int(at)]
+			x[col] += w / m.mult[col]
+		}
+	}
+	if s > 0 {
+		for j := 1; j < len(x); j++ {
+			x[j] /= s
+		}
+	}
+	m.prune(lambda)
+	dual := make([]float64, m.nrows)
+	for v, row := range m.lrow {
+		dual[row] = -m.center[v]
+	}
+	return &lp.Solution{Objective: sigma, X: x, RowDual: dual, Iterations: m.iters}, nil
+}
+
+// prune drops the points the master's last solution does not use, except
+// the newest few, so that the next rebuild stays small. The current master
+// keeps its rows; the points' indices then no longer match them, so the
+// master is marked stale.
+func (m *Model) prune(lambda []float64) {
+	const keepNewest = 16
+	if len(m.points) <= 4*keepNewest {
+		return
+	}
+	kept := m.points[:0]
+	for j, pt := range m.points {
+		if lambda[j] < 0 || j >= len(m.points)-keepNewest {
+			kept = append(kept, pt)
+		}
+	}
+	clear(m.points[len(kept):])
+	m.points = slices.Clip(kept)
+	m.stale = true
+}

@@ -1,0 +1,310 @@
+package dw_test
+
+import (
+	"context"
+	"math"
+	"math/rand/v2"
+	"testing"
+
+	"github.com/pickwise/pickwise/lp"
+	"github.com/pickwise/pickwise/lp/dw"
+	"github.com/pickwise/pickwise/lp/gonumlp"
+)
+
+// program is a random minimax program of the package's form, kept as
+// parts so that it can be loaded whole or in two steps.
+type program struct {
+	blocks [][]int     // columns of each block
+	mult   [][]float64 // their coefficients in the block row
+	rows   []linkRow
+	ncols  int // t included
+}
+
+type linkRow struct {
+	idx []int
+	val []float64
+	b   float64
+}
+
+// randomProgram returns a program with nb blocks of 1 to 4 columns (some
+// with coefficient 2 in their block row, as shared columns have) and nl
+// linking rows; row k only reaches blocks below reach(k), so that rows
+// added later can bring new blocks.
+func randomProgram(rng *rand.Rand, nb, nl int, reach func(k int) int) *program {
+	p := &program{ncols: 1}
+	for range nb {
+		var cols []int
+		var mult []float64
+		for range 1 + rng.IntN(4) {
+			cols = append(cols, p.ncols)
+			p.ncols++
+			m := 1.0
+			if rng.IntN(5) == 0 {
+				m = 2
+			}
+			mult = append(mult, m)
+		}
+		p.blocks = append(p.blocks, cols)
+		p.mult = append(p.mult, mult)
+	}
+	for k := range nl {
+		var r linkRow
+		for b := range reach(k) {
+			if rng.IntN(3) == 0 {
+				continue
+			}
+			for _, j := range p.blocks[b] {
+				if rng.IntN(2) == 0 {
+					r.idx = append(r.idx, j)
+					r.val = append(r.val, 3*rng.Float64())
+				}
+			}
+		}
+		r.b = -rng.Float64()
+		p.rows = append(p.rows, r)
+	}
+	return p
+}
+
+// problem returns the columns up to ncols and the given rows and blocks
+// as an lp.Problem (columns from first on only when first > 0: a batch).
+func (p *program) problem(first, ncols int, rows []linkRow, blocks []int) *lp.Problem {
+	q := &lp.Problem{}
+	if first == 0 {
+		q.AddCol(1, 0, math.Inf(1))
+		first = 1
+	}
+	for j := first; j < ncols; j++ {
+		q.AddCol(0, 0, math.Inf(1))
+	}
+	for _, r := range rows {
+		idx := append([]int{0}, r.idx...)
+		val := append([]float64{-1}, r.val...)
+		q.AddRow(idx, val, math.Inf(-1), r.b)
+	}
+	for _, b := range blocks {
+		q.AddRow(p.blocks[b], p.mult[b], 1, 1)
+	}
+	return q
+}
+
+func seq(n int) []int {
+	s := make([]int, n)
+	for i := range s {
+		s[i] = i
+	}
+	return s
+}
+
+// checkSolution checks that sol is feasible for p with linking rows up
+// to sol.Objective (within tol), that some row reaches it, and that the
+// prior in its duals proves it: the least expected row value over all
+// feasible x, computed block by block here, is within tol of it.
+func checkSolution(t *testing.T, p *program, sol *lp.Solution, tol float64) {
+	t.Helper()
+	x := sol.X
+	for b, cols := range p.blocks {
+		s := 0.0
+		for k, j := range cols {
+			if x[j] < -1e-12 {
+				t.Fatalf("x[%d] = %g", j, x[j])
+			}
+			s += p.mult[b][k] * x[j]
+		}
+		if math.Abs(s-1) > 1e-9 {
+			t.Fatalf("block %d sums to %g", b, s)
+		}
+	}
+	top := math.Inf(-1)
+	for k, r := range p.rows {
+		v := -r.b
+		for e, j := range r.idx {
+			v += r.val[e] * x[j]
+		}
+		if v > sol.Objective+tol {
+			t.Errorf("row %d: %g above the optimum %g", k, v, sol.Objective)
+		}
+		top = math.Max(top, v)
+	}
+	if math.Abs(top-sol.Objective) > tol {
+		t.Errorf("largest row %g, optimum %g", top, sol.Objective)
+	}
+	// The prior's lower bound.
+	nb := len(p.blocks)
+	cost := make([]float64, p.ncols)
+	var lb, mass float64
+	for k, r := range p.rows {
+		w := -sol.RowDual[k]
+		if w < -1e-12 {
+			t.Fatalf("row %d: prior weight %g", k, w)
+		}
+		mass += w
+		lb -= w * r.b
+		for e, j := range r.idx {
+			cost[j] += w * r.val[e]
+		}
+	}
+	for b := range nb {
+		best := math.Inf(1)
+		for k, j := range p.blocks[b] {
+			best = math.Min(best, cost[j]/p.mult[b][k])
+		}
+		lb += best
+	}
+	if math.Abs(mass-1) > 1e-9 {
+		t.Errorf("prior weights sum to %g", mass)
+	}
+	if lb < sol.Objective-tol {
+		t.Errorf("prior's lower bound %g below the optimum %g", lb, sol.Objective)
+	}
+}
+
+// TestAgainstGonum solves random programs by decomposition and compares
+// the optimum with gonum's simplex (gonum.org/v1/gonum/optimize/convex/lp,
+// a general-purpose reference solver) on the whole program.
+func TestAgainstGonum(t *testing.T) {
+	for _, tc := range []struct {
+		name       string
+		seed       uint64
+		nb, nl     int
+		smoothing  float64
+		iterations int
+	}{
+		{"small", 1, 4, 3, 0, 0},
+		{"more rows than blocks", 2, 5, 20, 0, 0},
+		{"many blocks", 3, 40, 12, 0, 0},
+		{"plain cutting planes", 4, 30, 15, -1, 0},
+		{"heavy smoothing", 5, 30, 15, 0.9, 0},
+		{"one row", 6, 10, 1, 0, 0},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			rng := rand.New(rand.NewPCG(tc.seed, 7))
+			p := randomProgram(rng, tc.nb, tc.nl, func(int) int { return tc.nb })
+			q := p.problem(0, p.ncols, p.rows, seq(tc.nb))
+			ref, err := gonumlp.Solver{}.Solve(context.Background(), q)
+			if err != nil {
+				t.Fatal(err)
+			}
+			m, err := dw.New(q)
+			if err != nil {
+				t.Fatal(err)
+			}
+			defer m.Close()
+			m.Smoothing = tc.smoothing
+			sol, err := m.Solve(context.Background())
+			if err != nil {
+				t.Fatal(err)
+			}
+			if math.Abs(sol.Objective-ref.Objective) > 1e-9*math.Max(1, math.Abs(ref.Objective)) {
+				t.Errorf("optimum %.12g, gonum %.12g", sol.Objective, ref.Objective)
+			}
+			checkSolution(t, p, sol, 1e-9)
+		})
+	}
+}
+
+// TestIncremental adds columns, linking rows and blocks after a solve and
+// checks the next solve against a model loaded whole.
+func TestIncremental(t *testing.T) {
+	rng := rand.New(rand.NewPCG(11, 3))
+	const nb, nl = 30, 24
+	// The first half of the rows reach the first 15 blocks only.
+	p := randomProgram(rng, nb, nl, func(k int) int {
+		if k < nl/2 {
+			return 15
+		}
+		return nb
+	})
+	split := p.blocks[15][0]
+	m, err := dw.New(p.problem(0, split, p.rows[:nl/2], seq(15)))
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer m.Close()
+	first, err := m.Solve(context.Background())
+	if err != nil {
+		t.Fatal(err)
+	}
+	batch := p.problem(split, p.ncols, p.rows[nl/2:], seq(nb)[15:])
+	if err := m.AddColumns(batch.ColLo, batch.ColUp, batch.Obj); err != nil {
+		t.Fatal(err)
+	}
+	if err := m.AddRows(batch); err != nil {
+		t.Fatal(err)
+	}
+	sol, err := m.Solve(context.Background())
+	if err != nil {
+		t.Fatal(err)
+	}
+	whole, err := dw.New(p.problem(0, p.ncols, p.rows, seq(nb)))
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer whole.Close()
+	want, err := whole.Solve(context.Background())
+	if err != nil {
+		t.Fatal(err)
+	}
+	if math.Abs(sol.Objective-want.Objective) > 1e-9 {
+		t.Errorf("after adding rows: optimum %.12g, loaded whole %.12g", sol.Objective, want.Objective)
+	}
+	if sol.Objective < first.Objective-1e-9 {
+		t.Errorf("optimum fell from %g to %g when rows were added", first.Objective, sol.Objective)
+	}
+	// Block rows come after the linking rows in the batch, so the
+	// solution's rows are the linking rows in order, then the blocks.
+	var dual []float64
+	dual = append(dual, sol.RowDual[:nl/2]...)
+	dual = append(dual, sol.RowDual[nl/2+15:nl/2+15+nl/2]...)
+	checkSolution(t, p, &lp.Solution{Objective: sol.Objective, X: sol.X, RowDual: dual}, 1e-9)
+}
+
+// TestBadForm checks that programs not of the package's form are refused.
+func TestBadForm(t *testing.T) {
+	good := func() *lp.Problem {
+		q := &lp.Problem{}
+		q.AddCol(1, 0, math.Inf(1))
+		q.AddCol(0, 0, math.Inf(1))
+		q.AddCol(0, 0, math.Inf(1))
+		q.AddRow([]int{0, 1}, []float64{-1, 2}, math.Inf(-1), 0)
+		q.AddRow([]int{1, 2}, []float64{1, 1}, 1, 1)
+		return q
+	}
+	for _, tc := range []struct {
+		name  string
+		spoil func(q *lp.Problem)
+	}{
+		{"t costs 2", func(q *lp.Problem) { q.Obj[0] = 2 }},
+		{"x has a cost", func(q *lp.Problem) { q.Obj[1] = 1 }},
+		{"x has an upper bound", func(q *lp.Problem) { q.ColUp[2] = 1 }},
+		{"t's coefficient", func(q *lp.Problem) { q.Value[0] = -2 }},
+		{"linking row with a lower bound", func(q *lp.Problem) { q.RowLo[0] = -5 }},
+		{"block row not equal to 1", func(q *lp.Problem) { q.RowLo[1], q.RowUp[1] = 2, 2 }},
+		{"negative block coefficient", func(q *lp.Problem) { q.Value[3] = -1 }},
+		{"column in two blocks", func(q *lp.Problem) { q.AddRow([]int{2}, []float64{1}, 1, 1) }},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			q := good()
+			tc.spoil(q)
+			m, err := dw.New(q)
+			if err == nil {
+				_, err = m.Solve(context.Background())
+				m.Close()
+			}
+			if err == nil {
+				t.Error("no error")
+			}
+		})
+	}
+	// And a column left out of every block.
+	q := good()
+	q.AddCol(0, 0, math.Inf(1))
+	m, err := dw.New(q)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer m.Close()
+	if _, err := m.Solve(context.Background()); err == nil {
+		t.Error("a column in no block: no error")
+	}
+}
