@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"math"
 	"math/big"
+	"math/bits"
 	"sort"
 
 	"github.com/pickwise/pickwise/discretize"
@@ -106,80 +107,148 @@ func BayesRisk(l *tables.Layout, configs [][]int, w []uint64, bits uint) (*big.R
 
 	risk := new(big.Int) // over 2^(bits + 52n)
 	for _, q := range sets {
-		mem := q.Members()
-		m := len(mem)
-		// Key: differences r_c - r_mem[0], packed.
-		span := 0
-		for _, k := range bySet[q] {
-			for _, c := range mem {
-				span = max(span, configs[k][c])
-			}
-		}
-		span += l.S + 1
-		base := int64(2*span + 1)
-		accs := make(map[int64][]*big.Int)
-		r := make([]int, n)
-		wk := new(big.Int)
-		prod := make([]*big.Int, m+1)
-		for i := range prod {
-			prod[i] = new(big.Int)
-		}
-		tmp := new(big.Int)
-		for _, k := range bySet[q] {
-			v := configs[k]
-			top := tables.Far
-			for _, c := range mem {
-				top = max(top, v[c])
-			}
-			wk.SetUint64(w[k])
-			prod[0].Set(wk)
-			var rec func(i int)
-			rec = func(i int) {
-				if i == m {
-					var key int64
-					for j := m - 1; j >= 1; j-- {
-						key = key*base + int64(r[mem[j]]-r[mem[0]]+span)
-					}
-					a := accs[key]
-					if a == nil {
-						a = make([]*big.Int, m)
-						for j := range a {
-							a[j] = new(big.Int)
-						}
-						accs[key] = a
-					}
-					for j, c := range mem {
-						if d := top - v[c]; d != 0 {
-							a[j].Add(a[j], tmp.Mul(prod[m], tmp.SetInt64(int64(d))))
-						}
-					}
-					return
-				}
-				c := mem[i]
-				for kk, pk := range num[c] {
-					if pk == 0 {
-						continue
-					}
-					r[c] = v[c] + l.Lo[c] + kk
-					prod[i+1].Mul(prod[i], tmp.SetUint64(pk))
-					rec(i + 1)
-				}
-			}
-			rec(0)
-		}
-		sum := new(big.Int)
-		for _, a := range accs {
-			best := a[0]
-			for _, x := range a[1:] {
-				if x.Cmp(best) < 0 {
-					best = x
-				}
-			}
-			sum.Add(sum, best)
-		}
-		sum.Lsh(sum, uint(discretize.DenomBits*(n-m)))
+		sum := bayesSubset(l, num, q.Members(), configs, w, bySet[q])
+		sum.Lsh(sum, uint(discretize.DenomBits*(n-q.Len())))
 		risk.Add(risk, sum)
 	}
 	den := new(big.Int).Lsh(big.NewInt(1), bits+uint(discretize.DenomBits*n))
 	return new(big.Rat).SetFrac(risk, den), nil
+}
+
+// bayesSubset returns, over 2^(bits + 52m), the sum over reading keys of
+// the least expected loss of the configurations ks of the subset with
+// members mem: for each key (the differences r_c - r_mem[0]) and member i,
+// sum over k of w_k P(key | v_k) (max v_k - v_k,i), minimised over i.
+//
+// It sums over the exact difference pmf of the subset (the probability of
+// a key given v is that of the noise differences key - (v_c - v_mem[0])),
+// in fixed-width integers: the numerators of the difference pmf take 52m
+// bits, a weight times a loss at most 64 + 32, and the sum over
+// configurations adds the bits of their count.
+func bayesSubset(l *tables.Layout, num [][]uint64, mem []int, configs [][]int, w []uint64, ks []int) *big.Int {
+	m := len(mem)
+	d := exactDifferences(l, num, mem)
+	// The difference pmf's numerators as little-endian words.
+	width := 1
+	for _, x := range d.num {
+		width = max(width, (x.BitLen()+63)/64)
+	}
+	words := make([]uint64, len(d.num)*width)
+	for j, x := range d.num {
+		for i, b := range x.Bits() {
+			words[j*width+i] = uint64(b)
+		}
+	}
+	limbs := width + 2 + (bits.Len(uint(len(ks)))+63)/64
+	span := 0
+	for _, k := range ks {
+		for _, c := range mem {
+			span = max(span, configs[k][c])
+		}
+	}
+	span += l.S + 1
+	base := int64(2*span + 1)
+
+	entry := make(map[int64]int32)
+	var slab []uint64 // m accumulators of limbs words per entry
+	for _, k := range ks {
+		v := configs[k]
+		top := tables.Far
+		for _, c := range mem {
+			top = max(top, v[c])
+		}
+		// scale[i] = w_k (top - v_i) in 128 bits.
+		var shi, slo [16]uint64
+		for i, c := range mem {
+			shi[i], slo[i] = bits.Mul64(w[k], uint64(top-v[c]))
+		}
+		for j := range d.num {
+			var key int64
+			for i := m - 1; i >= 1; i-- {
+				key = key*base + int64(v[mem[i]]-v[mem[0]]+d.e[j*m+i]+span)
+			}
+			at, ok := entry[key]
+			if !ok {
+				at = int32(len(entry))
+				entry[key] = at
+				slab = append(slab, make([]uint64, m*limbs)...)
+			}
+			x := words[j*width : (j+1)*width]
+			acc := slab[int(at)*m*limbs:]
+			for i := range m {
+				if shi[i] != 0 || slo[i] != 0 {
+					addMulWords(acc[i*limbs:(i+1)*limbs], x, shi[i], slo[i])
+				}
+			}
+		}
+	}
+	// Sum the least accumulator of every entry.
+	total := make([]uint64, limbs+2)
+	for e := range len(entry) {
+		acc := slab[e*m*limbs : (e+1)*m*limbs]
+		best := acc[:limbs]
+		for i := 1; i < m; i++ {
+			if a := acc[i*limbs : (i+1)*limbs]; lessWords(a, best) {
+				best = a
+			}
+		}
+		var c uint64
+		for i, b := range best {
+			total[i], c = bits.Add64(total[i], b, c)
+		}
+		for i := limbs; c != 0 && i < len(total); i++ {
+			total[i], c = bits.Add64(total[i], 0, c)
+		}
+	}
+	out := make([]big.Word, len(total))
+	for i, b := range total {
+		out[i] = big.Word(b)
+	}
+	return new(big.Int).SetBits(out)
+}
+
+// addMulWords adds x * (hi*2^64 + lo) to acc, little-endian words; acc
+// must be long enough to hold the result.
+func addMulWords(acc, x []uint64, hi, lo uint64) {
+	// acc += x * lo
+	var carry uint64
+	i := 0
+	for ; i < len(x); i++ {
+		ph, pl := bits.Mul64(x[i], lo)
+		var c uint64
+		pl, c = bits.Add64(pl, carry, 0)
+		ph += c
+		acc[i], c = bits.Add64(acc[i], pl, 0)
+		carry = ph + c
+	}
+	for ; carry != 0; i++ {
+		acc[i], carry = bits.Add64(acc[i], carry, 0)
+	}
+	if hi == 0 {
+		return
+	}
+	// acc += (x * hi) << 64
+	carry = 0
+	i = 0
+	for ; i < len(x); i++ {
+		ph, pl := bits.Mul64(x[i], hi)
+		var c uint64
+		pl, c = bits.Add64(pl, carry, 0)
+		ph += c
+		acc[i+1], c = bits.Add64(acc[i+1], pl, 0)
+		carry = ph + c
+	}
+	for i++; carry != 0; i++ {
+		acc[i], carry = bits.Add64(acc[i], carry, 0)
+	}
+}
+
+// lessWords reports a < b for little-endian words of equal length.
+func lessWords(a, b []uint64) bool {
+	for i := len(a) - 1; i >= 0; i-- {
+		if a[i] != b[i] {
+			return a[i] < b[i]
+		}
+	}
+	return false
 }
