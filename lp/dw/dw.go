@@ -41,6 +41,7 @@ import (
 	"os"
 	"runtime"
 	"slices"
+	"strconv"
 	"sync"
 	"time"
 
@@ -83,7 +84,7 @@ type Model struct {
 
 	nrows int // rows of the program
 
-	points []*point // pure points in the master, in master row order
+	cuts   []*cut // the master's cut rows, in order
 	master *clp.Model
 	stale  bool // the master must be rebuilt before the next solve
 
@@ -95,7 +96,21 @@ type Model struct {
 	prefer func(col int) float64
 	pref   []float64 // prefer's score per column, as far as computed
 	xs     []float64 // scratch: a pure point's x
+	// base is the first point: the preferred columns', or the one priced
+	// at the uniform prior. Its cuts in every part stay in the master.
+	base *point
+
+	partOf func(col int) int
+	label  map[int]int32 // partOf's labels to part indices
+	bpart  []int32       // part of each block, as far as computed
+	nparts int
 }
+
+// Parts splits the blocks into parts, by the label partOf gives a block's
+// first column: the master then mixes pure points part by part (a
+// disaggregated master), which needs fewer pricing rounds. Without it all
+// blocks form one part.
+func (m *Model) Parts(partOf func(col int) int) { m.partOf = partOf }
 
 // Prefer sets the order in which ties of pricing are broken: of the
 // columns of a block that are cheapest under the prior, the one with the
@@ -103,11 +118,18 @@ type Model struct {
 // on average over all linking rows.
 func (m *Model) Prefer(score func(col int) float64) { m.prefer = score }
 
-// point is a pure point: the chosen position in each block, and its row
-// values R(v) = a_v·x - b_v over the linking rows.
+// point is a pure point: the chosen position in each block.
 type point struct {
-	pick []uint8 // position within the block of the chosen column
-	r    []float64
+	pick []uint8
+}
+
+// cut is the part of a pure point in one part of the blocks, with its row
+// values: r[v] = a_v·x restricted to the part's blocks (without b_v).
+type cut struct {
+	pt     *point
+	part   int32
+	r      []float64
+	sticky bool // kept by prune whatever its weight
 }
 
 // New returns a model of program p (see the package comment for the form
@@ -214,7 +236,7 @@ func (m *Model) AddRows(p *lp.Problem) error {
 		m.bstart = append(m.bstart, len(m.bcols))
 		m.brow = append(m.brow, row)
 		// Points found before the block existed choose its first column.
-		for _, pt := range m.points {
+		for _, pt := range m.allPoints() {
 			pt.pick = append(pt.pick, 0)
 		}
 	}
@@ -248,9 +270,48 @@ func (m *Model) check() error {
 	return nil
 }
 
-// rowValues returns R(v) = a_v·x - b_v of pure point pt for the linking
-// rows from..nlink-1, appended to dst.
-func (m *Model) rowValues(pt *point, from int, dst []float64) []float64 {
+
+// allPoints returns the distinct points of the cuts, in order of first
+// use, with the base point first.
+func (m *Model) allPoints() []*point {
+	var out []*point
+	seen := make(map[*point]bool)
+	if m.base != nil {
+		out = append(out, m.base)
+		seen[m.base] = true
+	}
+	for _, c := range m.cuts {
+		if !seen[c.pt] {
+			seen[c.pt] = true
+			out = append(out, c.pt)
+		}
+	}
+	return out
+}
+
+// assignParts extends bpart to every block.
+func (m *Model) assignParts() {
+	if m.label == nil {
+		m.label = make(map[int]int32)
+	}
+	for b := len(m.bpart); b < len(m.brow); b++ {
+		lab := 0
+		if m.partOf != nil {
+			lab = m.partOf(int(m.bcols[m.bstart[b]]))
+		}
+		p, ok := m.label[lab]
+		if !ok {
+			p = int32(len(m.label))
+			m.label[lab] = p
+		}
+		m.bpart = append(m.bpart, p)
+	}
+	m.nparts = max(1, len(m.label))
+}
+
+// rowValues returns, per part, a_v·x over the part's blocks of pure point
+// pt, for the linking rows from..nlink-1.
+func (m *Model) rowValues(pt *point, from int) [][]float64 {
 	if len(m.xs) < m.ncols {
 		m.xs = make([]float64, m.ncols)
 	}
@@ -260,21 +321,32 @@ func (m *Model) rowValues(pt *point, from int, dst []float64) []float64 {
 		x[j] = 1 / m.mult[j]
 	}
 	k := m.nlink()
-	out := make([]float64, k-from)
+	out := make([][]float64, m.nparts)
+	for p := range out {
+		out[p] = make([]float64, k-from)
+	}
 	parallelRange(k-from, func(lo, hi int) {
 		for v := from + lo; v < from+hi; v++ {
-			s := -m.lb[v]
 			idx, val := m.lidx[m.lstart[v]:m.lstart[v+1]], m.lval[m.lstart[v]:m.lstart[v+1]]
-			for e, j := range idx {
-				s += val[e] * x[j]
+			if m.nparts == 1 {
+				var s float64
+				for e, j := range idx {
+					s += val[e] * x[j]
+				}
+				out[0][v-from] = s
+				continue
 			}
-			out[v-from] = s
+			for e, j := range idx {
+				if xj := x[j]; xj != 0 {
+					out[m.bpart[m.block[j]]][v-from] += val[e] * xj
+				}
+			}
 		}
 	})
 	for b, at := range pt.pick {
 		x[m.bcols[m.bstart[b]+int(at)]] = 0
 	}
-	return append(dst, out...)
+	return out
 }
 
 // parallelRange calls f on consecutive parts of [0, n), in parallel.
@@ -296,6 +368,16 @@ func parallelRange(n int, f func(lo, hi int)) {
 	wg.Wait()
 }
 
+// newCuts returns the cuts of point pt in every part.
+func (m *Model) newCuts(pt *point, sticky bool) []*cut {
+	rv := m.rowValues(pt, 0)
+	out := make([]*cut, m.nparts)
+	for p := range out {
+		out[p] = &cut{pt: pt, part: int32(p), r: rv[p], sticky: sticky}
+	}
+	return out
+}
+
 // price returns the pure point that minimises Σ_v π_v R(v) and that
 // minimum, a lower bound on the program's optimum when π is a prior.
 func (m *Model) price(pi []float64) (*point, float64) {
@@ -314,19 +396,13 @@ func (m *Model) price(pi []float64) (*point, float64) {
 			c[m.lidx[e]] += w * m.lval[e]
 		}
 	}
-	// Of the columns that minimise a block's cost, pick the one best on
-	// average over all linking rows: blocks that no row of the prior
-	// reaches then choose sensibly instead of arbitrarily.
+	// Of the columns that minimise a block's cost, pick the preferred
+	// one, or the one best on average over all linking rows: blocks that
+	// no row of the prior reaches then choose sensibly, not arbitrarily.
 	if m.prefer == nil && len(m.avg) < m.ncols {
 		m.average()
 	}
-	for j := len(m.pref); m.prefer != nil && j < m.ncols; j++ {
-		sc := 0.0
-		if j > 0 {
-			sc = m.prefer(j)
-		}
-		m.pref = append(m.pref, sc)
-	}
+	m.scores()
 	pt := &point{pick: make([]uint8, len(m.brow))}
 	for b := range m.brow {
 		cols := m.bcols[m.bstart[b]:m.bstart[b+1]]
@@ -353,8 +429,35 @@ func (m *Model) price(pi []float64) (*point, float64) {
 		}
 		pt.pick[b] = uint8(at)
 	}
-	pt.r = m.rowValues(pt, 0, nil)
 	return pt, val
+}
+
+// preferredPoint returns the point of the least-score column of every
+// block.
+func (m *Model) preferredPoint() *point {
+	m.scores()
+	pt := &point{pick: make([]uint8, len(m.brow))}
+	for b := range m.brow {
+		at, best := 0, math.Inf(1)
+		for k, j := range m.bcols[m.bstart[b]:m.bstart[b+1]] {
+			if m.pref[j] < best {
+				at, best = k, m.pref[j]
+			}
+		}
+		pt.pick[b] = uint8(at)
+	}
+	return pt
+}
+
+// scores extends pref to every column.
+func (m *Model) scores() {
+	for j := len(m.pref); m.prefer != nil && j < m.ncols; j++ {
+		sc := 0.0
+		if j > 0 {
+			sc = m.prefer(j)
+		}
+		m.pref = append(m.pref, sc)
+	}
 }
 
 // average sets avg to the columns' costs under the uniform prior on the
@@ -367,30 +470,85 @@ func (m *Model) average() {
 	}
 }
 
-// rebuild loads a new master with the kept points.
+// Master columns: σ, then η_p per part, then π_v per linking row. Rows:
+// Σ π = 1; σ - Σ η_p + Σ b_v π_v <= 0; then one row per cut.
+func (m *Model) piCol(v int) int { return 1 + m.nparts + v }
+
+// rebuild loads a new master with the kept cuts, extended to the new
+// rows, and the base point's cuts in parts that have none.
 func (m *Model) rebuild() error {
 	if m.master != nil {
 		m.master.Close()
 		m.master = nil
 	}
 	k := m.nlink()
-	for _, pt := range m.points {
-		pt.r = m.rowValues(pt, len(pt.r), pt.r)
+	// Extend the kept cuts' row values, one pass per point.
+	byPoint := make(map[*point][]*cut)
+	var order []*point
+	for _, c := range m.cuts {
+		if len(c.r) < k {
+			if byPoint[c.pt] == nil {
+				order = append(order, c.pt)
+			}
+			byPoint[c.pt] = append(byPoint[c.pt], c)
+		}
 	}
-	p := &lp.Problem{}
-	p.AddCol(-1, math.Inf(-1), math.Inf(1)) // σ
-	idx := make([]int, k)
-	one := make([]float64, k)
+	for _, pt := range order {
+		from := k
+		for _, c := range byPoint[pt] {
+			from = min(from, len(c.r))
+		}
+		rv := m.rowValues(pt, from)
+		for _, c := range byPoint[pt] {
+			c.r = append(c.r, rv[c.part][len(c.r)-from:]...)
+		}
+	}
+	// Every part needs a cut: the base point's.
+	has := make([]bool, m.nparts)
+	for _, c := range m.cuts {
+		has[c.part] = true
+	}
+	var rv [][]float64
+	for p := range has {
+		if !has[p] {
+			if rv == nil {
+				rv = m.rowValues(m.base, 0)
+			}
+			m.cuts = append(m.cuts, &cut{pt: m.base, part: int32(p), r: rv[p], sticky: true})
+		}
+	}
+
+	q := &lp.Problem{}
+	q.AddCol(-1, math.Inf(-1), math.Inf(1)) // σ
+	for range m.nparts {
+		q.AddCol(0, math.Inf(-1), math.Inf(1)) // η_p
+	}
+	idx := make([]int, 0, k+m.nparts+1)
+	val := make([]float64, 0, k+m.nparts+1)
 	for v := range k {
-		p.AddCol(0, 0, math.Inf(1))
-		idx[v] = v + 1
-		one[v] = 1
+		q.AddCol(0, 0, math.Inf(1))
+		idx = append(idx, m.piCol(v))
+		val = append(val, 1)
 	}
-	p.AddRow(idx, one, 1, 1)
-	for _, pt := range m.points {
-		m.addCut(p, pt)
+	q.AddRow(idx, val, 1, 1)
+	idx, val = idx[:0], val[:0]
+	idx = append(idx, 0)
+	val = append(val, 1)
+	for p := range m.nparts {
+		idx = append(idx, 1+p)
+		val = append(val, -1)
 	}
-	mm, err := clp.NewModel(p)
+	for v := range k {
+		if m.lb[v] != 0 {
+			idx = append(idx, m.piCol(v))
+			val = append(val, m.lb[v])
+		}
+	}
+	q.AddRow(idx, val, math.Inf(-1), 0)
+	for _, c := range m.cuts {
+		m.addCut(q, c)
+	}
+	mm, err := clp.NewModel(q)
 	if err != nil {
 		return fmt.Errorf("dw: master: %w", err)
 	}
@@ -400,21 +558,21 @@ func (m *Model) rebuild() error {
 	return nil
 }
 
-// addCut appends the row σ - Σ_v R(v) π_v <= 0 of pt to p.
-func (m *Model) addCut(p interface {
+// addCut appends the row η_p - Σ_v r_v π_v <= 0 of c to q.
+func (m *Model) addCut(q interface {
 	AddRow([]int, []float64, float64, float64) int
-}, pt *point) {
-	idx := make([]int, 0, len(pt.r)+1)
-	val := make([]float64, 0, len(pt.r)+1)
-	idx = append(idx, 0)
+}, c *cut) {
+	idx := make([]int, 0, len(c.r)+1)
+	val := make([]float64, 0, len(c.r)+1)
+	idx = append(idx, 1+int(c.part))
 	val = append(val, 1)
-	for v, r := range pt.r {
+	for v, r := range c.r {
 		if r != 0 {
-			idx = append(idx, v+1)
+			idx = append(idx, m.piCol(v))
 			val = append(val, -r)
 		}
 	}
-	p.AddRow(idx, val, math.Inf(-1), 0)
+	q.AddRow(idx, val, math.Inf(-1), 0)
 }
 
 // cutRows adapts clp.Rows to addCut.
@@ -440,6 +598,9 @@ func (m *Model) Solve(ctx context.Context) (*lp.Solution, error) {
 		tol = 1e-11
 	}
 	alpha := m.Smoothing
+	if a, err := strconv.ParseFloat(os.Getenv("DWALPHA"), 64); err == nil {
+		alpha = a
+	}
 	switch {
 	case alpha == 0:
 		alpha = 0.5
@@ -456,27 +617,44 @@ func (m *Model) Solve(ctx context.Context) (*lp.Solution, error) {
 		// weight on the new linking rows, and the old rows do not reach
 		// the new blocks.
 		m.center = append(m.center, make([]float64, k-len(m.center))...)
-		if len(m.points) == 0 {
+		m.assignParts()
+		if m.base == nil {
 			uniform := make([]float64, k)
 			for v := range uniform {
 				uniform[v] = 1 / float64(k)
 			}
 			pt, lb := m.price(uniform)
-			m.points = append(m.points, pt)
 			m.bestLB = lb
 			copy(m.center, uniform)
+			if m.prefer != nil {
+				// The preferred columns' point stays in the master:
+				// where the prior's rules are erratic away from the
+				// linking rows, the mixture can lean on it.
+				m.base = m.preferredPoint()
+				m.cuts = append(m.cuts, m.newCuts(pt, false)...)
+			} else {
+				m.base = pt
+			}
+		} else if m.prefer != nil {
+			// New blocks: the base point takes their preferred columns.
+			m.base.pick = m.preferredPoint().pick
+			for _, c := range m.cuts {
+				if c.pt == m.base {
+					c.r = nil // recomputed in rebuild
+				}
+			}
 		}
 		if err := m.rebuild(); err != nil {
 			return nil, err
 		}
 	}
 	var sigma float64
-	var pi, lambda []float64
+	var pi, dual []float64
 	t0 := time.Now()
 	nit := 0
 	defer func() {
 		if os.Getenv("DWDEBUG") != "" {
-			fmt.Fprintf(os.Stderr, "dw: %d rows %d blocks %d points %d its lb %.12g sigma %.12g %v\n", m.nlink(), len(m.brow), len(m.points), nit, m.bestLB, sigma, time.Since(t0))
+			fmt.Fprintf(os.Stderr, "dw: %d rows %d blocks %d parts %d cuts %d its lb %.12g sigma %.12g %v\n", m.nlink(), len(m.brow), m.nparts, len(m.cuts), nit, m.bestLB, sigma, time.Since(t0))
 		}
 	}()
 	for it := 0; ; it++ {
@@ -486,12 +664,22 @@ func (m *Model) Solve(ctx context.Context) (*lp.Solution, error) {
 		}
 		sol, err := m.master.Solve(ctx)
 		if err != nil {
-			return nil, fmt.Errorf("dw: master (%d points): %w", len(m.points), err)
+			return nil, fmt.Errorf("dw: master (%d cuts): %w", len(m.cuts), err)
 		}
 		m.iters += sol.Iterations
 		sigma = -sol.Objective
-		pi = sol.X[1 : k+1]
-		lambda = sol.RowDual[1:]
+		// The master's prior, within the simplex tolerance of one: clip
+		// and normalise it, so that its pricing value is a lower bound.
+		pi = sol.X[m.piCol(0) : m.piCol(0)+k]
+		var mass float64
+		for v, w := range pi {
+			pi[v] = math.Max(w, 0)
+			mass += pi[v]
+		}
+		for v := range pi {
+			pi[v] /= mass
+		}
+		dual = sol.RowDual[2:]
 		if sigma-m.bestLB <= tol*math.Max(1, math.Abs(sigma)) {
 			break
 		}
@@ -501,25 +689,31 @@ func (m *Model) Solve(ctx context.Context) (*lp.Solution, error) {
 		// Price at the smoothed prior; when its point does not cut off
 		// the master's prior (a mispricing), price at that prior too.
 		sep := pi
-		if !math.IsInf(m.bestLB, -1) && alpha > 0 {
+		smoothed := !math.IsInf(m.bestLB, -1) && alpha > 0
+		if smoothed {
 			sep = make([]float64, k)
 			for v := range sep {
 				sep[v] = alpha*m.center[v] + (1-alpha)*pi[v]
 			}
 		}
 		cr := &cutRows{}
-		smoothed := &sep[0] != &pi[0]
 		for {
 			pt, lb := m.price(sep)
 			if lb > m.bestLB {
 				m.bestLB = lb
 				copy(m.center, sep)
 			}
-			m.points = append(m.points, pt)
-			m.addCut(cr, pt)
-			var at float64
+			cs := m.newCuts(pt, false)
+			at := 0.0
 			for v, w := range pi {
-				at += w * pt.r[v]
+				at -= w * m.lb[v]
+			}
+			for _, c := range cs {
+				m.cuts = append(m.cuts, c)
+				m.addCut(cr, c)
+				for v, w := range pi {
+					at += w * c.r[v]
+				}
 			}
 			if at < sigma-tol*math.Max(1, math.Abs(sigma)) || !smoothed {
 				break
@@ -530,50 +724,52 @@ func (m *Model) Solve(ctx context.Context) (*lp.Solution, error) {
 			return nil, fmt.Errorf("dw: master: %w", err)
 		}
 	}
-	// The mixture: λ_j on pure point j.
+	// The mixture: in each part, weight λ_c = -dual on cut c's point.
 	x := make([]float64, m.ncols)
 	x[0] = sigma
-	var s float64
-	for j, pt := range m.points {
-		w := -lambda[j]
-		if w <= 0 {
+	mass := make([]float64, m.nparts)
+	for ci, c := range m.cuts {
+		if w := -dual[ci]; w > 0 {
+			mass[c.part] += w
+		}
+	}
+	for ci, c := range m.cuts {
+		w := -dual[ci]
+		if w <= 0 || mass[c.part] <= 0 {
 			continue
 		}
-		s += w
-		for b, at := range pt.pick {
+		w /= mass[c.part]
+		for b, at := range c.pt.pick {
+			if m.bpart[b] != c.part {
+				continue
+			}
 			col := m.bcols[m.bstart[b]+int(at)]
 			x[col] += w / m.mult[col]
 		}
 	}
-	if s > 0 {
-		for j := 1; j < len(x); j++ {
-			x[j] /= s
-		}
-	}
-	m.prune(lambda)
-	dual := make([]float64, m.nrows)
+	m.prune(dual)
+	out := make([]float64, m.nrows)
 	for v, row := range m.lrow {
-		dual[row] = -m.center[v]
+		out[row] = -m.center[v]
 	}
-	return &lp.Solution{Objective: sigma, X: x, RowDual: dual, Iterations: m.iters}, nil
+	return &lp.Solution{Objective: sigma, X: x, RowDual: out, Iterations: m.iters}, nil
 }
 
-// prune drops the points the master's last solution does not use, except
-// the newest few, so that the next rebuild stays small. The current master
-// keeps its rows; the points' indices then no longer match them, so the
-// master is marked stale.
-func (m *Model) prune(lambda []float64) {
-	const keepNewest = 16
-	if len(m.points) <= 4*keepNewest {
+// prune drops the cuts the master's last solution does not use, except
+// the newest few and the sticky ones, so that the next rebuild stays
+// small. The current master keeps its rows, so it is marked stale.
+func (m *Model) prune(dual []float64) {
+	keepNewest := 16 * m.nparts
+	if len(m.cuts) <= 4*keepNewest {
 		return
 	}
-	kept := m.points[:0]
-	for j, pt := range m.points {
-		if lambda[j] < 0 || j >= len(m.points)-keepNewest {
-			kept = append(kept, pt)
+	kept := m.cuts[:0]
+	for j, c := range m.cuts {
+		if dual[j] < 0 || c.sticky || j >= len(m.cuts)-keepNewest {
+			kept = append(kept, c)
 		}
 	}
-	clear(m.points[len(kept):])
-	m.points = slices.Clip(kept)
+	clear(m.cuts[len(kept):])
+	m.cuts = slices.Clip(kept)
 	m.stale = true
 }

@@ -168,14 +168,20 @@ func TestAgainstGonum(t *testing.T) {
 		seed       uint64
 		nb, nl     int
 		smoothing  float64
-		iterations int
+		prefer     bool
+		parts      int
 	}{
-		{"small", 1, 4, 3, 0, 0},
-		{"more rows than blocks", 2, 5, 20, 0, 0},
-		{"many blocks", 3, 40, 12, 0, 0},
-		{"plain cutting planes", 4, 30, 15, -1, 0},
-		{"heavy smoothing", 5, 30, 15, 0.9, 0},
-		{"one row", 6, 10, 1, 0, 0},
+		{"small", 1, 4, 3, 0, false, 0},
+		{"more rows than blocks", 2, 5, 20, 0, false, 0},
+		{"many blocks", 3, 40, 12, 0, false, 0},
+		{"plain cutting planes", 4, 30, 15, -1, false, 0},
+		{"heavy smoothing", 5, 30, 15, 0.9, false, 0},
+		{"one row", 6, 10, 1, 0, false, 0},
+		{"preferred columns", 7, 30, 15, 0, true, 0},
+		{"preferred columns, many rows", 8, 20, 40, 0, true, 0},
+		{"parts", 9, 30, 15, 0, false, 4},
+		{"parts and preferred columns", 10, 30, 25, 0, true, 3},
+		{"a part per column", 11, 12, 10, 0, true, 1000},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			rng := rand.New(rand.NewPCG(tc.seed, 7))
@@ -191,6 +197,12 @@ func TestAgainstGonum(t *testing.T) {
 			}
 			defer m.Close()
 			m.Smoothing = tc.smoothing
+			if tc.prefer {
+				m.Prefer(func(col int) float64 { return float64(col % 3) })
+			}
+			if tc.parts > 0 {
+				m.Parts(func(col int) int { return col % tc.parts })
+			}
 			sol, err := m.Solve(context.Background())
 			if err != nil {
 				t.Fatal(err)
@@ -221,6 +233,8 @@ func TestIncremental(t *testing.T) {
 		t.Fatal(err)
 	}
 	defer m.Close()
+	// Parts whose blocks come in both steps.
+	m.Parts(func(col int) int { return col % 3 })
 	first, err := m.Solve(context.Background())
 	if err != nil {
 		t.Fatal(err)

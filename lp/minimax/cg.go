@@ -264,6 +264,21 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 			return -float64(t.Cells[v.Cell].Diff[v.Channel])
 		})
 	}
+	if pm, ok := model.(interface{ Parts(func(col int) int) }); ok {
+		// A part per table and channel of highest reading.
+		pm.Parts(func(col int) int {
+			v := f.Vars[col-1]
+			t := f.Tables.Table(v.Group)
+			c := &t.Cells[v.Cell]
+			top := -1
+			for k, ch := range t.Members {
+				if c.Alive.Has(ch) && (top < 0 || c.Diff[k] > c.Diff[top]) {
+					top = k
+				}
+			}
+			return int(v.Group)<<5 | top
+		})
+	}
 	pending = &lp.Problem{}
 
 	res := &CGResult{F: f}
