@@ -38,12 +38,9 @@ import (
 	"errors"
 	"fmt"
 	"math"
-	"os"
 	"runtime"
 	"slices"
-	"strconv"
 	"sync"
-	"time"
 
 	"github.com/pickwise/pickwise/lp"
 	"github.com/pickwise/pickwise/lp/clp"
@@ -269,7 +266,6 @@ func (m *Model) check() error {
 	}
 	return nil
 }
-
 
 // allPoints returns the distinct points of the cuts, in order of first
 // use, with the base point first.
@@ -598,9 +594,6 @@ func (m *Model) Solve(ctx context.Context) (*lp.Solution, error) {
 		tol = 1e-11
 	}
 	alpha := m.Smoothing
-	if a, err := strconv.ParseFloat(os.Getenv("DWALPHA"), 64); err == nil {
-		alpha = a
-	}
 	switch {
 	case alpha == 0:
 		alpha = 0.5
@@ -650,15 +643,7 @@ func (m *Model) Solve(ctx context.Context) (*lp.Solution, error) {
 	}
 	var sigma float64
 	var pi, dual []float64
-	t0 := time.Now()
-	nit := 0
-	defer func() {
-		if os.Getenv("DWDEBUG") != "" {
-			fmt.Fprintf(os.Stderr, "dw: %d rows %d blocks %d parts %d cuts %d its lb %.12g sigma %.12g %v\n", m.nlink(), len(m.brow), m.nparts, len(m.cuts), nit, m.bestLB, sigma, time.Since(t0))
-		}
-	}()
 	for it := 0; ; it++ {
-		nit = it
 		if err := ctx.Err(); err != nil {
 			return nil, fmt.Errorf("dw: %w", err)
 		}

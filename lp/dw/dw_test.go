@@ -164,12 +164,12 @@ func checkSolution(t *testing.T, p *program, sol *lp.Solution, tol float64) {
 // a general-purpose reference solver) on the whole program.
 func TestAgainstGonum(t *testing.T) {
 	for _, tc := range []struct {
-		name       string
-		seed       uint64
-		nb, nl     int
-		smoothing  float64
-		prefer     bool
-		parts      int
+		name      string
+		seed      uint64
+		nb, nl    int
+		smoothing float64
+		prefer    bool
+		parts     int
 	}{
 		{"small", 1, 4, 3, 0, false, 0},
 		{"more rows than blocks", 2, 5, 20, 0, false, 0},
