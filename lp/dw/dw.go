@@ -95,7 +95,8 @@ type Model struct {
 	xs     []float64 // scratch: a pure point's x
 	// base is the first point: the preferred columns', or the one priced
 	// at the uniform prior. Its cuts in every part stay in the master.
-	base *point
+	base       *point
+	baseBlocks int // blocks the base point's choices were made for
 
 	partOf func(col int) int
 	label  map[int]int32 // partOf's labels to part indices
@@ -628,8 +629,9 @@ func (m *Model) Solve(ctx context.Context) (*lp.Solution, error) {
 			} else {
 				m.base = pt
 			}
-		} else if m.prefer != nil {
+		} else if m.prefer != nil && m.baseBlocks < len(m.brow) {
 			// New blocks: the base point takes their preferred columns.
+			// (A rebuild after prune alone leaves it as it is.)
 			m.base.pick = m.preferredPoint().pick
 			for _, c := range m.cuts {
 				if c.pt == m.base {
@@ -637,6 +639,7 @@ func (m *Model) Solve(ctx context.Context) (*lp.Solution, error) {
 				}
 			}
 		}
+		m.baseBlocks = len(m.brow)
 		if err := m.rebuild(); err != nil {
 			return nil, err
 		}
