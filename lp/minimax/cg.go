@@ -48,7 +48,8 @@ type CGOptions struct {
 	MaxRounds int
 	// Deadline, when not zero, stops the loop after the round that passes
 	// it, or interrupts the LP solve that passes it; the result then holds
-	// the rule of the last completed round, with Converged false. A
+	// the rule with the least worst case of the completed rounds, with
+	// Converged false. A
 	// deadline that passes before the first LP solve ends is an error.
 	Deadline time.Time
 	// Progress, when not nil, is called after every round.
@@ -78,11 +79,15 @@ type Progress struct {
 // CGResult is the outcome of SolveCG.
 type CGResult struct {
 	// F is the final formulation: its rows are the working set; its
-	// tables (after Apply of Solution.X, done by SolveCG) hold the rule.
-	F        *Formulation
+	// tables hold the rule (SolveCG applies the solution of the round
+	// whose rule has the least worst case: the last one when the loop
+	// converged).
+	F *Formulation
+	// Solution is the LP solution of the last round: its duals give the
+	// best prior found.
 	Solution *lp.Solution
-	// WorstCase is the fast evaluator's worst case of the final rule,
-	// in steps.
+	// WorstCase is the fast evaluator's worst case of the rule in F's
+	// tables, in steps.
 	WorstCase float64
 	Rounds    int
 	Converged bool
@@ -282,6 +287,9 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 	pending = &lp.Problem{}
 
 	res := &CGResult{F: f}
+	// bestX is the solution of the round whose rule has the least worst
+	// case: a loop stopped early returns that rule, not the last one.
+	var bestX []float64
 	for round := 1; ; round++ {
 		sol, err := solveBy(ctx, model, opt.Deadline)
 		if err != nil {
@@ -289,10 +297,10 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 			stopped := errors.Is(err, context.DeadlineExceeded) || (errors.As(err, &se) && se.Status == lp.TimeLimit)
 			if ctx.Err() == nil && !opt.Deadline.IsZero() && stopped {
 				if res.Solution != nil {
-					// The rule of the last round: cells added since
+					// The best rule of the rounds: cells added since
 					// have no probabilities in it and pick as a
-					// missing cell does, as the evaluation assumed.
-					f.Apply(res.Solution.X)
+					// missing cell does, as its evaluation assumed.
+					f.Apply(bestX)
 					return res, nil
 				}
 				return nil, fmt.Errorf("constraint generation: the time limit passed before the first LP solve ended (%d configurations, %d columns, %d nonzeros)",
@@ -306,16 +314,21 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 		if err != nil {
 			return nil, err
 		}
-		res.Solution, res.WorstCase, res.Rounds = sol, top, round
+		res.Solution, res.Rounds = sol, round
+		if bestX == nil || top < res.WorstCase {
+			bestX, res.WorstCase = sol.X, top
+		}
 		if opt.Progress != nil {
 			opt.Progress(Progress{Round: round, Configs: f.NumConfigs(), LPValue: sol.Objective,
 				WorstCase: top, Violations: count, Elapsed: time.Since(start)})
 		}
 		if len(viol) == 0 {
+			bestX, res.WorstCase = sol.X, top
 			res.Converged = true
 			return res, nil
 		}
 		if round >= maxRounds || (!opt.Deadline.IsZero() && time.Now().After(opt.Deadline)) {
+			f.Apply(bestX)
 			return res, nil
 		}
 		if err := ctx.Err(); err != nil {
