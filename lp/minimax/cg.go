@@ -58,8 +58,13 @@ type CGOptions struct {
 	Evaluator fast.Evaluator
 	// Radius spreads the configurations added in a round: of two
 	// violated configurations within Radius steps of each other in every
-	// channel, only the more violated is added. Zero means a quarter of
+	// channel, only the more violated is added. Zero means an eighth of
 	// the smallest noise spread; negative means no spreading.
+	// (Three channels with normal noise at step 0.1: a quarter reached
+	// a worst case within 0.001 steps of the optimum in about 100 s, an
+	// eighth within 0.0003 in 81 s, a sixteenth filled the batch with
+	// neighbours and stalled; three channels with 15-point pmfs: 1.4 s
+	// at a quarter, 0.9 s at an eighth.)
 	Radius int
 	// NoSymmetry ignores that channels with identical noise are
 	// interchangeable (see Options.NoSymmetry).
@@ -168,7 +173,7 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 		for i := range l.Lo {
 			w = min(w, l.Hi[i]-l.Lo[i])
 		}
-		radius = w / 4
+		radius = w / 8
 	}
 
 	// pending collects the rows of configurations to add.
