@@ -290,6 +290,7 @@ func (m *Model) Solve(ctx context.Context) (*lp.Solution, error) {
 		return nil, fmt.Errorf("clp: unknown algorithm %d", int(alg))
 	}
 	defer runtime.KeepAlive(m)
+	start := time.Now()
 	// A column in no row whose cost improves without limit makes the
 	// problem unbounded if the rest is feasible. CLP 1.17 gets such
 	// problems wrong (it scales empty columns by about 1e20 and then
@@ -372,6 +373,12 @@ func (m *Model) Solve(ctx context.Context) (*lp.Solution, error) {
 
 	if err := ctx.Err(); err != nil {
 		return nil, fmt.Errorf("clp: solve interrupted: %w", err)
+	}
+	if C.Clp_status(m.ptr) == 3 && secs > 0 && time.Since(start).Seconds() >= 0.9*secs {
+		// Stopped by the time limit: CLP's secondary status does not
+		// always say so (the dual simplex of a re-solve gave 0, not 9).
+		return nil, &lp.StatusError{Backend: "clp", Status: lp.TimeLimit,
+			Detail: fmt.Sprintf("after %d iterations and %.3g s", iterations, time.Since(start).Seconds())}
 	}
 	if err := m.statusError(); err != nil {
 		return nil, err
