@@ -346,6 +346,6 @@ func (a *app) stderrIsTerminal() bool {
 
 // progress prints one round of constraint generation on standard error.
 func (a *app) progress(p minimax.Progress) {
-	fmt.Fprintf(a.stderr, "\rround %d: %d configurations, LP %.9g, worst case of the rule %.9g (steps), %d above the LP, %s   ",
-		p.Round, p.Configs, p.LPValue, p.WorstCase, p.Violations, p.Elapsed.Round(1e7))
+	fmt.Fprintf(a.stderr, "\rround %d: %d configurations, LP %.9g, worst case of the round's rule %.9g, of the best rule %.9g (steps), %d above the LP, %s   ",
+		p.Round, p.Configs, p.LPValue, p.WorstCase, p.Best, p.Violations, p.Elapsed.Round(1e7))
 }

@@ -76,7 +76,8 @@ type Progress struct {
 	Round      int
 	Configs    int     // configurations in the working set
 	LPValue    float64 // optimum over the working set: a lower bound on the restricted optimum
-	WorstCase  float64 // worst case of the current rule: an upper bound
+	WorstCase  float64 // worst case of the round's rule
+	Best       float64 // worst case of the best rule so far: an upper bound
 	Violations int     // configurations above the LP value by more than the tolerance
 	Elapsed    time.Duration
 }
@@ -193,8 +194,12 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 		v   []int
 		reg float64
 	}
+	// regs receives the regret of every configuration, in the
+	// evaluator's order (the same in every round).
+	var regs []float64
 	worst := func(rule tables.Rule, threshold float64, radius int, sizeOf func(tables.Set) int) ([]scored, float64, int, error) {
 		var out []scored
+		regs = regs[:0]
 		top := 0.0
 		count := 0
 		for _, q := range tables.Subsets(n) {
@@ -203,6 +208,7 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 			size := sizeOf(q)
 			list := make([]scored, 0, size)
 			err := opt.Evaluator.Regrets(l, rule, q, l.D, func(v []int, reg float64) {
+				regs = append(regs, reg)
 				top = math.Max(top, reg)
 				if reg <= threshold || inSet[keyOf(canon(v))] {
 					return
@@ -248,7 +254,7 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 	// has about two per point of the subset's difference pmf), between 8
 	// and the batch: rows of fine-step normal noise reach tens of
 	// thousands of cells each.
-	init, _, _, err := worst(tables.Greedy{}, -1, radius, func(q tables.Set) int {
+	init, initTop, _, err := worst(f.Tables, -1, radius, func(q tables.Set) int {
 		return min(batch, max(8, 500000/max(f.differences(q).Len(), 1)))
 	})
 	if err != nil {
@@ -292,9 +298,23 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 	pending = &lp.Problem{}
 
 	res := &CGResult{F: f}
-	// bestX is the solution of the round whose rule has the least worst
-	// case: a loop stopped early returns that rule, not the last one.
-	var bestX []float64
+	// best is the rule with the least worst case found so far: the
+	// highest reading at first (the tables without cells), then mixtures
+	// of it with the rules of the rounds. Each round's rule is optimal on
+	// the working set but can be far from it elsewhere, each in its own
+	// places; the best mixture of two rules is found from their regrets at
+	// every configuration, regrets being linear in the probabilities.
+	best := struct {
+		snap  [][]float64
+		regs  []float64
+		worst float64
+	}{make([][]float64, len(f.Tables.Tables)), append([]float64(nil), regs...), initTop}
+	// finish installs the best rule and returns the result.
+	finish := func(converged bool) (*CGResult, error) {
+		f.restore(best.snap)
+		res.WorstCase, res.Converged = best.worst, converged
+		return res, nil
+	}
 	for round := 1; ; round++ {
 		sol, err := solveBy(ctx, model, opt.Deadline)
 		if err != nil {
@@ -302,11 +322,7 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 			stopped := errors.Is(err, context.DeadlineExceeded) || (errors.As(err, &se) && se.Status == lp.TimeLimit)
 			if ctx.Err() == nil && !opt.Deadline.IsZero() && stopped {
 				if res.Solution != nil {
-					// The best rule of the rounds: cells added since
-					// have no probabilities in it and pick as a
-					// missing cell does, as its evaluation assumed.
-					f.Apply(bestX)
-					return res, nil
+					return finish(false)
 				}
 				return nil, fmt.Errorf("constraint generation: the time limit passed before the first LP solve ended (%d configurations, %d columns, %d nonzeros)",
 					f.NumConfigs(), f.Problem.NumCols(), f.Problem.NumNonzeros())
@@ -320,21 +336,29 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 			return nil, err
 		}
 		res.Solution, res.Rounds = sol, round
-		if bestX == nil || top < res.WorstCase {
-			bestX, res.WorstCase = sol.X, top
+		if len(regs) != len(best.regs) {
+			return nil, fmt.Errorf("constraint generation: the evaluator reported %d configurations, then %d", len(best.regs), len(regs))
+		}
+		if len(viol) == 0 {
+			// The round's rule is optimal: no configuration outside the
+			// working set is above the LP value, none inside it by more
+			// than the LP's tolerance.
+			best.snap, best.worst = f.snapshot(), top
+		} else if theta, w := bestMix(regs, best.regs, sol.Objective); w < best.worst {
+			best.snap, best.worst = f.mix(best.snap, theta), w
+			for i, r := range regs {
+				best.regs[i] = theta*r + (1-theta)*best.regs[i]
+			}
 		}
 		if opt.Progress != nil {
 			opt.Progress(Progress{Round: round, Configs: f.NumConfigs(), LPValue: sol.Objective,
-				WorstCase: top, Violations: count, Elapsed: time.Since(start)})
+				WorstCase: top, Best: best.worst, Violations: count, Elapsed: time.Since(start)})
 		}
-		if len(viol) == 0 {
-			bestX, res.WorstCase = sol.X, top
-			res.Converged = true
-			return res, nil
+		if len(viol) == 0 || best.worst <= threshold {
+			return finish(true)
 		}
 		if round >= maxRounds || (!opt.Deadline.IsZero() && time.Now().After(opt.Deadline)) {
-			f.Apply(bestX)
-			return res, nil
+			return finish(false)
 		}
 		if err := ctx.Err(); err != nil {
 			return nil, err
@@ -354,4 +378,53 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 		}
 		pending = &lp.Problem{}
 	}
+}
+
+// bestMix returns the theta in [0, 1] that minimises the worst case
+// max_v theta*a[v] + (1-theta)*b[v] of the mixture of two rules with
+// regrets a and b, and that worst case. lower is a lower bound on the
+// least worst case of any rule: configurations where both rules are at
+// most lower cannot decide the mixture's worst case.
+func bestMix(a, b []float64, lower float64) (theta, worst float64) {
+	var ca, cb []float64
+	for v := range a {
+		if a[v] > lower || b[v] > lower {
+			ca = append(ca, a[v])
+			cb = append(cb, b[v])
+		}
+	}
+	g := func(th float64) float64 {
+		m := lower
+		for v := range ca {
+			m = math.Max(m, th*ca[v]+(1-th)*cb[v])
+		}
+		return m
+	}
+	// g is convex: golden-section search, then the better of its result
+	// and the ends.
+	const phi = 0.6180339887498949
+	lo, hi := 0.0, 1.0
+	x1, x2 := hi-phi*(hi-lo), lo+phi*(hi-lo)
+	g1, g2 := g(x1), g(x2)
+	for hi-lo > 1e-12 {
+		if g1 <= g2 {
+			hi, x2, g2 = x2, x1, g1
+			x1 = hi - phi*(hi-lo)
+			g1 = g(x1)
+		} else {
+			lo, x1, g1 = x1, x2, g2
+			x2 = lo + phi*(hi-lo)
+			g2 = g(x2)
+		}
+	}
+	theta, worst = x1, g1
+	if g2 < worst {
+		theta, worst = x2, g2
+	}
+	for _, th := range []float64{0, 1} {
+		if w := g(th); w <= worst {
+			theta, worst = th, w
+		}
+	}
+	return theta, worst
 }

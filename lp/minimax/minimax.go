@@ -416,18 +416,80 @@ func (f *Formulation) Apply(x []float64) {
 			}
 			// No probabilities in x (a cell added after x was found):
 			// pick as a table without the cell would.
-			for k, ch := range t.Members {
-				r[ch] = cell.Diff[k]
-			}
-			pick := tables.Fallback(cell.Alive, r)
-			for k, ch := range t.Members {
-				r[ch] = tables.Far
-				if ch == pick {
-					cell.P[k] = 1
-				}
-			}
+			fallback(t, cell, r)
 		}
 	}
+}
+
+// fallback sets the probabilities of cell of table t to pick as the table
+// without the cell would. r is scratch space of length n, all tables.Far,
+// and is left so.
+func fallback(t *tables.Table, cell *tables.Cell, r []int) {
+	for k, ch := range t.Members {
+		r[ch] = cell.Diff[k]
+	}
+	pick := tables.Fallback(cell.Alive, r)
+	for k, ch := range t.Members {
+		r[ch] = tables.Far
+		cell.P[k] = 0
+		if ch == pick {
+			cell.P[k] = 1
+		}
+	}
+}
+
+// snapshot returns a copy of the probabilities of every cell of f's
+// tables: per table, the cells' P one after the other.
+func (f *Formulation) snapshot() [][]float64 {
+	out := make([][]float64, len(f.Tables.Tables))
+	for i, t := range f.Tables.Tables {
+		s := make([]float64, 0, len(t.Cells)*len(t.Members))
+		for ci := range t.Cells {
+			s = append(s, t.Cells[ci].P...)
+		}
+		out[i] = s
+	}
+	return out
+}
+
+// restore sets the probabilities of f's tables to those of snap, a
+// snapshot of the same tables, taken when they may have had fewer cells:
+// cells added since pick as a table without them would, as they did when
+// the snapshot's rule was evaluated.
+func (f *Formulation) restore(snap [][]float64) {
+	r := make([]int, f.Layout.N())
+	for i := range r {
+		r[i] = tables.Far
+	}
+	for i, t := range f.Tables.Tables {
+		m := len(t.Members)
+		for ci := range t.Cells {
+			cell := &t.Cells[ci]
+			if (ci+1)*m <= len(snap[i]) {
+				copy(cell.P, snap[i][ci*m:(ci+1)*m])
+				continue
+			}
+			fallback(t, cell, r)
+		}
+	}
+}
+
+// mix returns the snapshot of the rule that follows the rule of f's
+// tables with probability theta and that of snap (see restore) otherwise.
+// Regrets are linear in the probabilities: the mixture's regret at every
+// configuration is theta times the first rule's plus 1-theta times the
+// second's.
+func (f *Formulation) mix(snap [][]float64, theta float64) [][]float64 {
+	cur := f.snapshot()
+	f.restore(snap)
+	old := f.snapshot()
+	for i := range cur {
+		for k := range cur[i] {
+			cur[i][k] = theta*cur[i][k] + (1-theta)*old[i][k]
+		}
+	}
+	f.restore(cur)
+	return cur
 }
 
 // NumConfigs returns the number of configurations with a regret row.
