@@ -315,6 +315,27 @@ func (m *Model) Solve(ctx context.Context) (*lp.Solution, error) {
 	m.solved = true
 	iterations := int(C.Clp_numberIterations(m.ptr))
 	lastPrimal := alg == Primal
+	// CLP's time limit counts the process's CPU time, which the
+	// program's other threads (the garbage collector of a large heap)
+	// spend too: a solve can stop well before the wall-clock limit (a
+	// master of lp/dw stopped after 7,023 iterations, seconds before its
+	// deadline). Continue from the basis reached until the wall-clock
+	// limit has passed.
+	for tries := 0; secs > 0 && C.Clp_status(m.ptr) == 3 && tries < 1000; tries++ {
+		rem := secs - time.Since(start).Seconds()
+		if rem <= 0 {
+			break
+		}
+		// The other threads are still busy, most likely: allow
+		// their share of CPU time, or this stops early again.
+		C.Clp_setMaximumSeconds(m.ptr, C.double(rem*float64(runtime.GOMAXPROCS(0))))
+		if lastPrimal {
+			C.Clp_primal(m.ptr, 0)
+		} else {
+			C.Clp_dual(m.ptr, 0)
+		}
+		iterations += int(C.Clp_numberIterations(m.ptr))
+	}
 	if C.Clp_status(m.ptr) == 4 {
 		// Stopped on errors: the other simplex method, from the basis
 		// reached, often gets through. (The primal simplex stops so on
@@ -376,7 +397,7 @@ func (m *Model) Solve(ctx context.Context) (*lp.Solution, error) {
 	}
 	if C.Clp_status(m.ptr) == 3 && secs > 0 && time.Since(start).Seconds() >= 0.9*secs {
 		// Stopped by the time limit: CLP's secondary status does not
-		// always say so (the dual simplex of a re-solve gave 0, not 9).
+		// always say so.
 		return nil, &lp.StatusError{Backend: "clp", Status: lp.TimeLimit,
 			Detail: fmt.Sprintf("after %d iterations and %.3g s", iterations, time.Since(start).Seconds())}
 	}
