@@ -177,23 +177,29 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 		radius = w / 8
 	}
 
-	// pending collects the rows of configurations to add.
-	pending := &lp.Problem{}
-	add := func(v []int) {
-		v = canon(v)
-		k := keyOf(v)
-		if !inSet[k] {
-			inSet[k] = true
-			f.addRegretRow(v, pending)
-		}
-	}
-
-	// worst collects, per subset, the configurations of rule with the
-	// largest regrets above threshold, most violated first.
 	type scored struct {
 		v   []int
 		reg float64
 	}
+	// pending collects the rows of configurations to add.
+	pending := &lp.Problem{}
+	// add adds the rows of the configurations not yet in the working set
+	// (their canonical ones), in order, computing them in parallel.
+	add := func(list []scored) {
+		var vs [][]int
+		for _, s := range list {
+			v := canon(s.v)
+			k := keyOf(v)
+			if !inSet[k] {
+				inSet[k] = true
+				vs = append(vs, append([]int(nil), v...))
+			}
+		}
+		f.addRegretRows(vs, pending)
+	}
+
+	// worst collects, per subset, the configurations of rule with the
+	// largest regrets above threshold, most violated first.
 	// regs receives the regret of every configuration, in the
 	// evaluator's order (the same in every round).
 	var regs []float64
@@ -260,9 +266,7 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 	if err != nil {
 		return nil, err
 	}
-	for _, s := range init {
-		add(s.v)
-	}
+	add(init)
 	f.addCellRowsFrom(1, nil)
 	cols := f.Problem.NumCols()
 	// The model starts with the initial regret rows and the cell rows.
@@ -363,9 +367,7 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 		if err := ctx.Err(); err != nil {
 			return nil, err
 		}
-		for _, s := range viol {
-			add(s.v)
-		}
+		add(viol)
 		if p := f.Problem; p.NumCols() > cols {
 			if err := model.AddColumns(p.ColLo[cols:], p.ColUp[cols:], p.Obj[cols:]); err != nil {
 				return nil, err
