@@ -21,7 +21,6 @@ import (
 	"fmt"
 	"math"
 	"slices"
-	"sort"
 
 	"github.com/pickwise/pickwise/lp"
 	"github.com/pickwise/pickwise/tables"
@@ -60,13 +59,8 @@ type Formulation struct {
 	cols  map[tables.Set][]int32
 	sym   *symmetry
 	diffs map[tables.Set]*tables.Differences
-	// scratch for rows
-	idx     []int
-	val     []float64
-	acc     []float64
-	touched []int
-	r       []int
-	order   []int
+	// scratch of the goroutines that compute rows (addRegretRows)
+	scratch []*rowScratch
 }
 
 // Options bound the size of a formulation.
@@ -127,10 +121,8 @@ func factorial(m int) float64 {
 // newFormulation returns a formulation with column t and no cells; it uses
 // the symmetry of identical channels unless noSym is set.
 func newFormulation(l *tables.Layout, noSym bool) *Formulation {
-	n := l.N()
 	f := &Formulation{Layout: l, Problem: &lp.Problem{}, Tables: tables.NewOptimal(l),
-		cols: make(map[tables.Set][]int32), diffs: make(map[tables.Set]*tables.Differences),
-		r: make([]int, n), order: make([]int, n)}
+		cols: make(map[tables.Set][]int32), diffs: make(map[tables.Set]*tables.Differences)}
 	if !noSym {
 		f.sym = newSymmetry(l)
 	}
@@ -165,9 +157,6 @@ func (f *Formulation) addCell(g, alive tables.Set, r []int, share []int) int {
 			f.Vars = append(f.Vars, Var{Group: g, Cell: int32(ci), Channel: int8(k), Mult: 1})
 		}
 		f.cols[g] = append(f.cols[g], col)
-	}
-	for len(f.acc) < p.NumCols() {
-		f.acc = append(f.acc, 0)
 	}
 	return ci
 }
@@ -251,82 +240,6 @@ func (f *Formulation) differences(q tables.Set) *tables.Differences {
 	return d
 }
 
-// regretRow returns the regret row of configuration v (without the -t
-// entry): column indices in increasing order, coefficients, and the
-// constant of the forced outcomes. Cells met for the first time are added.
-func (f *Formulation) regretRow(v []int, idx []int, val []float64) ([]int, []float64, float64) {
-	l := f.Layout
-	n := l.N()
-	q := tables.SubsetOf(v)
-	top := slices.Max(v)
-	var forced float64
-	r := f.r
-	diff := f.differences(q)
-	for k := 0; k < diff.Len(); k++ {
-		a, prob := diff.Point(k), diff.Prob[k]
-		for i := range r {
-			r[i] = v[i] + a[i]
-		}
-		g := l.TopGroup(r, f.order)
-		alive := g
-		if g.Len() > 1 {
-			alive = l.Alive(g, r)
-		}
-		if alive.Len() == 1 {
-			for i := 0; i < n; i++ {
-				if alive.Has(i) {
-					forced += prob * float64(top-v[i])
-				}
-			}
-			continue
-		}
-		t := f.Tables.Table(g)
-		ci := t.Lookup(r)
-		if ci < 0 {
-			ci = f.addOrbit(g, alive, r)
-		}
-		m := len(t.Members)
-		cols := f.cols[g][ci*m : (ci+1)*m]
-		for k, ch := range t.Members {
-			if !alive.Has(ch) {
-				continue
-			}
-			if d := top - v[ch]; d != 0 {
-				col := cols[k]
-				if f.acc[col] == 0 {
-					f.touched = append(f.touched, int(col))
-				}
-				f.acc[col] += prob * float64(d)
-			}
-		}
-	}
-	sort.Ints(f.touched)
-	idx, val = idx[:0], val[:0]
-	for _, c := range f.touched {
-		if f.acc[c] != 0 {
-			idx = append(idx, c)
-			val = append(val, f.acc[c])
-		}
-		f.acc[c] = 0
-	}
-	f.touched = f.touched[:0]
-	return idx, val, forced
-}
-
-// addRegretRow appends the regret row of configuration v (with its -t
-// entry) to the problem, and to also when it is not nil, and records v.
-func (f *Formulation) addRegretRow(v []int, also *lp.Problem) {
-	var forced float64
-	f.idx, f.val, forced = f.regretRow(v, f.idx, f.val)
-	f.idx = append(f.idx, 0)
-	f.val = append(f.val, -1)
-	f.RowOf = append(f.RowOf, f.Problem.AddRow(f.idx, f.val, math.Inf(-1), -forced))
-	if also != nil {
-		also.AddRow(f.idx, f.val, math.Inf(-1), -forced)
-	}
-	f.Configs = append(f.Configs, v...)
-}
-
 // Build returns the direct LP of layout l: a regret row for every
 // configuration.
 func Build(l *tables.Layout, opt Options) (*Formulation, error) {
@@ -341,6 +254,9 @@ func Build(l *tables.Layout, opt Options) (*Formulation, error) {
 	n := l.N()
 	f := newFormulation(l, opt.NoSymmetry)
 	w := make([]int, n)
+	// Rows are added in batches, computed in parallel.
+	const batch = 1024
+	var vs [][]int
 	for _, q := range tables.Subsets(n) {
 		tables.Configurations(n, q, l.D, func(v []int) bool {
 			if f.sym != nil {
@@ -349,10 +265,15 @@ func Build(l *tables.Layout, opt Options) (*Formulation, error) {
 					return true
 				}
 			}
-			f.addRegretRow(v, nil)
+			vs = append(vs, append([]int(nil), v...))
+			if len(vs) == batch {
+				f.addRegretRows(vs, nil)
+				vs = vs[:0]
+			}
 			return true
 		})
 	}
+	f.addRegretRows(vs, nil)
 	f.addCellRows()
 	return f, nil
 }

@@ -26,9 +26,11 @@ type missing struct {
 	g, alive tables.Set
 }
 
-// existingRow computes the regret row of configuration v as regretRow
-// does, without adding cells: when outcomes reach cells not yet in the
-// tables, it returns ok false and, with record, those outcomes in order.
+// existingRow computes the regret row of configuration v (without the -t
+// entry: column indices in increasing order, coefficients, and the
+// constant of the forced outcomes) from the cells already in the tables.
+// When outcomes reach cells not yet there it returns ok false and, with
+// record, those outcomes in order.
 func (f *Formulation) existingRow(v []int, sc *rowScratch, record bool) (idx []int, val []float64, forced float64, miss []missing, ok bool) {
 	l := f.Layout
 	n := l.N()
@@ -95,11 +97,13 @@ func (f *Formulation) existingRow(v []int, sc *rowScratch, record bool) (idx []i
 	return idx, val, forced, miss, ok
 }
 
-// addRegretRows appends the regret rows of configurations vs, in order,
-// as addRegretRow one after the other would (the same cells, columns and
-// rows, in the same order), computing the rows in parallel: first every
-// row whose cells all exist, then, one configuration after the other, the
-// cells the others reach for the first time, then the rows of those.
+// addRegretRows appends the regret rows (with their -t entries) of
+// configurations vs to the problem, and to also when it is not nil, and
+// records the configurations. Cells met for the first time are added, one
+// configuration after the other and each's in the order of its outcomes,
+// so the formulation does not depend on how configurations are split into
+// calls. The rows are computed in parallel: first every row whose cells
+// all exist, then, after the new cells are added, the others.
 func (f *Formulation) addRegretRows(vs [][]int, also *lp.Problem) {
 	if len(vs) == 0 {
 		return
@@ -117,15 +121,22 @@ func (f *Formulation) addRegretRows(vs [][]int, also *lp.Problem) {
 	rows := make([]row, len(vs))
 	compute := func(todo []int, record bool) {
 		workers := min(runtime.GOMAXPROCS(0), len(todo))
-		var next atomic.Int64
-		var wg sync.WaitGroup
 		n := f.Layout.N()
 		cols := f.Problem.NumCols()
-		for range workers {
+		for len(f.scratch) < workers {
+			f.scratch = append(f.scratch, &rowScratch{r: make([]int, n), order: make([]int, n)})
+		}
+		var next atomic.Int64
+		var wg sync.WaitGroup
+		for w := range workers {
+			sc := f.scratch[w]
+			if len(sc.acc) < cols {
+				// Zero beyond its old length, like the rest after use.
+				sc.acc = append(sc.acc, make([]float64, cols-len(sc.acc))...)
+			}
 			wg.Add(1)
 			go func() {
 				defer wg.Done()
-				sc := &rowScratch{r: make([]int, n), order: make([]int, n), acc: make([]float64, cols)}
 				for {
 					k := int(next.Add(1)) - 1
 					if k >= len(todo) {

@@ -11,7 +11,7 @@ import (
 
 // TestAddRegretRowsMatchesOneByOne: rows added in parallel batches give
 // the same formulation, bit for bit (cells, columns, rows, coefficients),
-// as rows added one after the other, with and without a symmetry.
+// as rows added one configuration at a time, with and without a symmetry.
 func TestAddRegretRowsMatchesOneByOne(t *testing.T) {
 	pmf := func(lo int, p ...float64) discretize.PMF {
 		q, err := discretize.Quantize(lo, p)
@@ -51,7 +51,7 @@ func TestAddRegretRowsMatchesOneByOne(t *testing.T) {
 			one := newFormulation(l, false)
 			alsoOne := &lp.Problem{}
 			for _, v := range vs {
-				one.addRegretRow(canonical(one, v), alsoOne)
+				one.addRegretRows([][]int{canonical(one, v)}, alsoOne)
 			}
 			batch := newFormulation(l, false)
 			alsoBatch := &lp.Problem{}
