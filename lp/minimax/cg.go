@@ -48,7 +48,7 @@ type CGOptions struct {
 	MaxRounds int
 	// Deadline, when not zero, stops the loop after the round that passes
 	// it, or interrupts the LP solve that passes it; the result then holds
-	// the rule with the least worst case of the completed rounds, with
+	// the best rule of the completed rounds (see CGResult.F), with
 	// Converged false. A
 	// deadline that passes before the first LP solve ends is an error.
 	Deadline time.Time
@@ -85,9 +85,9 @@ type Progress struct {
 // CGResult is the outcome of SolveCG.
 type CGResult struct {
 	// F is the final formulation: its rows are the working set; its
-	// tables hold the rule (SolveCG applies the solution of the round
-	// whose rule has the least worst case: the last one when the loop
-	// converged).
+	// tables hold the best rule found: the last round's when the loop
+	// converged on it, otherwise the mixture of the rounds' rules and
+	// the highest reading with the least worst case.
 	F *Formulation
 	// Solution is the LP solution of the last round: its duals give the
 	// best prior found.

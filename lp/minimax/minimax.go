@@ -337,24 +337,24 @@ func (f *Formulation) Apply(x []float64) {
 			}
 			// No probabilities in x (a cell added after x was found):
 			// pick as a table without the cell would.
-			fallback(t, cell, r)
+			fallback(t, cell, r, cell.P)
 		}
 	}
 }
 
-// fallback sets the probabilities of cell of table t to pick as the table
-// without the cell would. r is scratch space of length n, all tables.Far,
-// and is left so.
-func fallback(t *tables.Table, cell *tables.Cell, r []int) {
+// fallback sets p to the probabilities with which table t would pick
+// at cell if the table did not have it. r is scratch space of length n,
+// all tables.Far, and is left so.
+func fallback(t *tables.Table, cell *tables.Cell, r []int, p []float64) {
 	for k, ch := range t.Members {
 		r[ch] = cell.Diff[k]
 	}
 	pick := tables.Fallback(cell.Alive, r)
 	for k, ch := range t.Members {
 		r[ch] = tables.Far
-		cell.P[k] = 0
+		p[k] = 0
 		if ch == pick {
-			cell.P[k] = 1
+			p[k] = 1
 		}
 	}
 }
@@ -373,44 +373,49 @@ func (f *Formulation) snapshot() [][]float64 {
 	return out
 }
 
-// restore sets the probabilities of f's tables to those of snap, a
-// snapshot of the same tables, taken when they may have had fewer cells:
-// cells added since pick as a table without them would, as they did when
-// the snapshot's rule was evaluated.
-func (f *Formulation) restore(snap [][]float64) {
+// eachSnapped calls fn for every cell of f's tables with the cell's
+// probabilities in snap, a snapshot of the same tables taken when they
+// may have had fewer cells: cells added since pick as a table without
+// them would, as they did when the snapshot's rule was evaluated.
+func (f *Formulation) eachSnapped(snap [][]float64, fn func(cell *tables.Cell, p []float64)) {
 	r := make([]int, f.Layout.N())
 	for i := range r {
 		r[i] = tables.Far
 	}
+	var tmp []float64
 	for i, t := range f.Tables.Tables {
 		m := len(t.Members)
 		for ci := range t.Cells {
 			cell := &t.Cells[ci]
 			if (ci+1)*m <= len(snap[i]) {
-				copy(cell.P, snap[i][ci*m:(ci+1)*m])
+				fn(cell, snap[i][ci*m:(ci+1)*m])
 				continue
 			}
-			fallback(t, cell, r)
+			tmp = slices.Grow(tmp[:0], m)[:m]
+			fallback(t, cell, r, tmp)
+			fn(cell, tmp)
 		}
 	}
 }
 
-// mix returns the snapshot of the rule that follows the rule of f's
-// tables with probability theta and that of snap (see restore) otherwise.
-// Regrets are linear in the probabilities: the mixture's regret at every
-// configuration is theta times the first rule's plus 1-theta times the
-// second's.
+// restore sets the probabilities of f's tables to those of snap (see
+// eachSnapped).
+func (f *Formulation) restore(snap [][]float64) {
+	f.eachSnapped(snap, func(cell *tables.Cell, p []float64) { copy(cell.P, p) })
+}
+
+// mix sets f's tables to the rule that follows their rule with
+// probability theta and that of snap (see eachSnapped) otherwise, and
+// returns its snapshot. Regrets are linear in the probabilities: the
+// mixture's regret at every configuration is theta times the first
+// rule's plus 1-theta times the second's.
 func (f *Formulation) mix(snap [][]float64, theta float64) [][]float64 {
-	cur := f.snapshot()
-	f.restore(snap)
-	old := f.snapshot()
-	for i := range cur {
-		for k := range cur[i] {
-			cur[i][k] = theta*cur[i][k] + (1-theta)*old[i][k]
+	f.eachSnapped(snap, func(cell *tables.Cell, p []float64) {
+		for k := range cell.P {
+			cell.P[k] = theta*cell.P[k] + (1-theta)*p[k]
 		}
-	}
-	f.restore(cur)
-	return cur
+	})
+	return f.snapshot()
 }
 
 // NumConfigs returns the number of configurations with a regret row.
