@@ -78,13 +78,64 @@ type Table struct {
 	Members []int
 	Cells   []Cell
 	span    int // largest |difference| of a key entry: T*(|group|-1)
-	index   map[int64]int32
+	// The cell of each key: dense holds index+1 per key (0: no cell)
+	// when the keys fit in maxDense entries, index otherwise.
+	dense []int32
+	index map[int64]int32
 }
+
+// maxDense is the largest number of keys that a table indexes in a flat
+// array (4 bytes per key) instead of a map: 2^25 keys, 128 MiB. Lookups
+// in the array take a fraction of a map's time, and the solvers look up
+// cells for every noise outcome of every configuration they touch.
+const maxDense = 1 << 25
 
 // NewTable returns an empty table for group g under layout l.
 func NewTable(l *Layout, g Set) *Table {
 	m := g.Members()
-	return &Table{Group: g, Members: m, span: l.T * (len(m) - 1), index: make(map[int64]int32)}
+	return &Table{Group: g, Members: m, span: l.T * (len(m) - 1)}
+}
+
+// keys returns the number of distinct keys of the table, or -1 when it
+// exceeds maxDense.
+func (t *Table) keys() int {
+	base := 2*t.span + 1
+	n := 1
+	for range len(t.Members) - 1 {
+		if n > maxDense/base {
+			return -1
+		}
+		n *= base
+	}
+	return n
+}
+
+// find returns the cell of key k, or -1.
+func (t *Table) find(k int64) int {
+	if t.dense != nil {
+		return int(t.dense[k]) - 1
+	}
+	if c, ok := t.index[k]; ok {
+		return int(c)
+	}
+	return -1
+}
+
+// store records that key k is the cell c, allocating the index on first
+// use.
+func (t *Table) store(k int64, c int) {
+	if t.dense == nil && t.index == nil {
+		if n := t.keys(); n > 0 {
+			t.dense = make([]int32, n)
+		} else {
+			t.index = make(map[int64]int32)
+		}
+	}
+	if t.dense != nil {
+		t.dense[k] = int32(c + 1)
+		return
+	}
+	t.index[k] = int32(c)
 }
 
 // Key packs the reading differences of the group's members, relative to the
@@ -109,10 +160,7 @@ func (t *Table) Lookup(r []int) int {
 	if !ok {
 		return -1
 	}
-	if c, ok := t.index[k]; ok {
-		return int(c)
-	}
-	return -1
+	return t.find(k)
 }
 
 // Add appends a cell for readings r with the given alive set and
@@ -123,8 +171,8 @@ func (t *Table) Add(r []int, alive Set, p []float64) int {
 	if !ok {
 		return -1
 	}
-	if c, ok := t.index[k]; ok {
-		return int(c)
+	if c := t.find(k); c >= 0 {
+		return c
 	}
 	c := Cell{Diff: make([]int, len(t.Members)), Alive: alive, P: make([]float64, len(t.Members))}
 	r0 := r[t.Members[0]]
@@ -142,7 +190,7 @@ func (t *Table) Add(r []int, alive Set, p []float64) int {
 		}
 	}
 	t.Cells = append(t.Cells, c)
-	t.index[k] = int32(len(t.Cells) - 1)
+	t.store(k, len(t.Cells)-1)
 	return len(t.Cells) - 1
 }
 
