@@ -198,13 +198,18 @@ func (t *Table) Add(r []int, alive Set, p []float64) int {
 // Readings whose top group has a single channel, or a single channel not
 // certainly below another, pick it; otherwise the rule looks up the cell of
 // the top group's table. A missing cell picks the alive channel with the
-// highest reading, the lowest-numbered on a tie (a table built by pickwise
-// covers every reachable cell, so this only matters for tables from
-// elsewhere).
+// highest reading plus its offset, r_i + Half[i]/2 steps (the highest
+// reading when Half is nil), the lowest-numbered on a tie (see Fallback).
+// Tables of the direct LP cover every reachable cell; tables found by
+// constraint generation have cells only where the configurations of the
+// working set reach, and leave the rest to the offsets.
 type Optimal struct {
 	Layout *Layout
 	Tables []*Table // in the order of Subsets
-	byset  []*Table // indexed by group mask
+	// Half holds the offset of each channel for missing cells, in half
+	// steps; nil means none.
+	Half  []int
+	byset []*Table // indexed by group mask
 }
 
 // NewOptimal returns a table rule with an empty table for every group.
@@ -250,7 +255,7 @@ func (o *Optimal) Probs(r []int, p []float64) {
 	}
 	_, alive, t, c := o.Locate(r)
 	if t == nil || c < 0 {
-		p[Fallback(alive, r)] = 1
+		p[Fallback(alive, r, o.Half)] = 1
 		return
 	}
 	for i, ch := range t.Members {
@@ -291,14 +296,23 @@ func (o *Optimal) Check(tol float64) error {
 	return nil
 }
 
-// Fallback returns the channel a table rule picks when no cell decides: the
-// channel of alive with the highest reading, the lowest-numbered on a tie.
-// For a forced choice this is the only alive channel.
-func Fallback(alive Set, r []int) int {
-	best := -1
+// Fallback returns the channel a table rule picks when no cell decides:
+// the channel of alive with the highest 2*r_i + half[i] (the highest
+// reading plus its offset; half may be nil, for no offsets), the
+// lowest-numbered on a tie. For a forced choice this is the only alive
+// channel.
+func Fallback(alive Set, r []int, half []int) int {
+	best, top := -1, 0
 	for i := range r {
-		if alive.Has(i) && (best < 0 || r[i] > r[best]) {
-			best = i
+		if !alive.Has(i) {
+			continue
+		}
+		s := 2 * r[i]
+		if half != nil {
+			s += half[i]
+		}
+		if best < 0 || s > top {
+			best, top = i, s
 		}
 	}
 	return best

@@ -75,3 +75,32 @@ func TestTableKeys(t *testing.T) {
 		})
 	}
 }
+
+// TestFallback checks the channel a missing cell picks, worked by hand:
+// the highest 2*r_i + half_i among the alive channels, the lowest-numbered
+// on a tie.
+func TestFallback(t *testing.T) {
+	far := Far
+	for _, tc := range []struct {
+		name  string
+		alive Set
+		r     []int
+		half  []int
+		want  int
+	}{
+		{"highest reading", 0b111, []int{0, 3, 2}, nil, 1},
+		{"tie to the lowest-numbered", 0b111, []int{4, 1, 4}, nil, 0},
+		{"dead channel skipped", 0b101, []int{0, 3, 2}, nil, 2},
+		{"offset overtakes", 0b111, []int{0, 3, 2}, []int{0, 0, 3}, 2},                     // 2*3 = 6 < 2*2+3 = 7
+		{"half step decides", 0b011, []int{5, 4, far}, []int{-2, 1, 0}, 1},                 // 8 < 9
+		{"offset tie to the lowest-numbered", 0b011, []int{5, 4, far}, []int{-1, 1, 0}, 0}, // 9 = 9
+		{"negative offset", 0b111, []int{1, 0, -1}, []int{-3, 0, 0}, 1},
+		{"one alive channel", 0b100, []int{9, 9, 0}, []int{9, 9, 0}, 2},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			if got := Fallback(tc.alive, tc.r, tc.half); got != tc.want {
+				t.Errorf("Fallback(%b, %v, %v) = %d, want %d", tc.alive, tc.r, tc.half, got, tc.want)
+			}
+		})
+	}
+}

@@ -5,6 +5,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"slices"
 	"sort"
 	"time"
 
@@ -69,6 +70,17 @@ type CGOptions struct {
 	// NoSymmetry ignores that channels with identical noise are
 	// interchangeable (see Options.NoSymmetry).
 	NoSymmetry bool
+	// Half, when not nil, holds an offset per channel, in half steps:
+	// cells without columns pick as the offset rule does, the alive
+	// channel with the highest reading plus its offset (the tables' Half),
+	// and so does the rule before the first round. Nil means the highest
+	// reading. With noise that is biased or unequal the offset rule's
+	// offsets (tables.Layout.OffsetHalfSteps) start the loop from a far
+	// better rule than the highest reading, and its configurations where
+	// the working set has not reached stay at the offset rule's regret.
+	// Channels with identical noise must have equal offsets unless
+	// NoSymmetry is set.
+	Half []int
 }
 
 // Progress reports one round of constraint generation, in steps.
@@ -156,7 +168,20 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 		maxRounds = 1000
 	}
 	n := l.N()
+	if opt.Half != nil && len(opt.Half) != n {
+		return nil, fmt.Errorf("constraint generation: %d offsets for %d channels", len(opt.Half), n)
+	}
 	f := newFormulation(l, opt.NoSymmetry)
+	if f.sym != nil && opt.Half != nil {
+		for _, p := range f.sym.perms {
+			for i, j := range p {
+				if opt.Half[i] != opt.Half[j] {
+					return nil, fmt.Errorf("constraint generation: channels %d and %d have identical noise but offsets %d and %d half steps", i, j, opt.Half[i], opt.Half[j])
+				}
+			}
+		}
+	}
+	f.Tables.Half = slices.Clone(opt.Half)
 	// canon maps a configuration to the one whose row stands for its
 	// orbit under the symmetry (itself without one).
 	cv := make([]int, n)
@@ -277,11 +302,16 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 	defer model.Close()
 	if pm, ok := model.(interface{ Prefer(func(col int) float64) }); ok {
 		// Where nothing decides between a cell's channels, prefer the
-		// highest reading, as a cell without columns does.
+		// highest reading plus its offset, as a cell without columns
+		// does.
 		pm.Prefer(func(col int) float64 {
 			v := f.Vars[col-1]
 			t := f.Tables.Table(v.Group)
-			return -float64(t.Cells[v.Cell].Diff[v.Channel])
+			s := 2 * t.Cells[v.Cell].Diff[v.Channel]
+			if f.Tables.Half != nil {
+				s += f.Tables.Half[t.Members[v.Channel]]
+			}
+			return -float64(s)
 		})
 	}
 	if pm, ok := model.(interface{ Parts(func(col int) int) }); ok {

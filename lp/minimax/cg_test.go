@@ -4,6 +4,7 @@ import (
 	"context"
 	"fmt"
 	"math"
+	"slices"
 	"testing"
 	"time"
 
@@ -155,5 +156,92 @@ func TestCGKeepsBestRule(t *testing.T) {
 	}
 	if !mixed {
 		t.Error("no mixture was better than the best round's rule: the model does not test mixing")
+	}
+}
+
+// TestCGOffsets: with the offset rule's offsets for cells without
+// columns, constraint generation starts from the offset rule's tables,
+// which on skewed noise are far better than the highest reading, stopped
+// after one round ships a rule no worse than them, and converges to the
+// optimum of the direct LP (the LP is exact whatever rule the missing
+// cells follow: invariance of the optimum, design notes, step 5).
+func TestCGOffsets(t *testing.T) {
+	m := model(t, 1,
+		[]float64{-3, 0.11, 0.16, 0.2, 0.19, 0.34},
+		[]float64{0, 0.28, 0.1, 0.08, 0.26, 0.28},
+		[]float64{-3, 0.15, 0.16, 0.48, 0.08, 0.13})
+	direct := solve(t, m, clp.Solver{PrimalTolerance: 1e-9, DualTolerance: 1e-9})
+	l := direct.l
+	half := l.OffsetHalfSteps()
+	empty := tables.NewOptimal(l)
+	plain, err := fast.WorstCase(l, empty, l.D)
+	if err != nil {
+		t.Fatal(err)
+	}
+	empty.Half = half
+	start, err := fast.WorstCase(l, empty, l.D)
+	if err != nil {
+		t.Fatal(err)
+	}
+	t.Logf("offsets %v half steps; tables without cells: %.6g by the highest reading, %.6g by the offsets", half, plain.Regret, start.Regret)
+	if start.Regret > 0.8*plain.Regret {
+		t.Fatalf("the offsets do not improve on the highest reading (%.6g against %.6g): the model does not test them", start.Regret, plain.Regret)
+	}
+
+	one, err := minimax.SolveCG(context.Background(), l, newStopAt(0), minimax.CGOptions{Batch: 2, MaxRounds: 1, Half: half})
+	if err != nil {
+		t.Fatal(err)
+	}
+	w, err := fast.WorstCase(l, one.F.Tables, l.D)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !slices.Equal(one.F.Tables.Half, half) || math.Abs(w.Regret-one.WorstCase) > 1e-12*w.Regret || w.Regret > start.Regret*(1+1e-12) {
+		t.Errorf("after one round: offsets %v, worst case %.15g (reported %.15g), the offsets alone %.15g",
+			one.F.Tables.Half, w.Regret, one.WorstCase, start.Regret)
+	}
+
+	res, err := minimax.SolveCG(context.Background(), l, newStopAt(0), minimax.CGOptions{Batch: 4, Half: half})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !res.Converged {
+		t.Fatal("constraint generation did not converge")
+	}
+	w, err = fast.WorstCase(l, res.F.Tables, l.D)
+	if err != nil {
+		t.Fatal(err)
+	}
+	opt := direct.sol.Objective
+	if math.Abs(res.Solution.Objective-opt) > 1e-8*opt || math.Abs(w.Regret-opt) > 1e-8*opt {
+		t.Errorf("LP value %.12g and worst case %.12g, want the direct optimum %.12g", res.Solution.Objective, w.Regret, opt)
+	}
+}
+
+// TestCGOffsetsErrors: offsets of the wrong length, or unequal on channels
+// that the symmetry makes interchangeable, are refused.
+func TestCGOffsetsErrors(t *testing.T) {
+	pmf := []float64{-1, 0.3, 0.4, 0.3}
+	l, err := tables.NewLayout(model(t, 1, pmf, pmf, []float64{0, 0.5, 0.5}))
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, tc := range []struct {
+		name  string
+		half  []int
+		noSym bool
+		ok    bool
+	}{
+		{"too few", []int{0, 0}, false, false},
+		{"unequal on identical channels", []int{1, 0, 0}, false, false},
+		{"unequal without the symmetry", []int{1, 0, 0}, true, true},
+		{"equal on identical channels", []int{2, 2, -1}, false, true},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			_, err := minimax.SolveCG(context.Background(), l, newStopAt(0), minimax.CGOptions{Half: tc.half, NoSymmetry: tc.noSym, MaxRounds: 1})
+			if (err == nil) != tc.ok {
+				t.Errorf("error %v, want ok %v", err, tc.ok)
+			}
+		})
 	}
 }

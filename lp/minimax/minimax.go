@@ -309,7 +309,7 @@ func (f *Formulation) addCellRowsFrom(first int, also *lp.Problem) {
 // tables: negative round-off is clipped to 0 and each cell renormalised.
 // Cells that share columns under the symmetry get the same probabilities,
 // permuted. A cell none of whose columns is in x picks as a missing cell
-// does (tables.Fallback).
+// does (tables.Fallback with the tables' offsets).
 func (f *Formulation) Apply(x []float64) {
 	r := make([]int, f.Layout.N())
 	for i := range r {
@@ -337,19 +337,20 @@ func (f *Formulation) Apply(x []float64) {
 			}
 			// No probabilities in x (a cell added after x was found):
 			// pick as a table without the cell would.
-			fallback(t, cell, r, cell.P)
+			fallback(t, cell, f.Tables.Half, r, cell.P)
 		}
 	}
 }
 
 // fallback sets p to the probabilities with which table t would pick
-// at cell if the table did not have it. r is scratch space of length n,
-// all tables.Far, and is left so.
-func fallback(t *tables.Table, cell *tables.Cell, r []int, p []float64) {
+// at cell if the table did not have it, half being the offsets of missing
+// cells (tables.Optimal.Half). r is scratch space of length n, all
+// tables.Far, and is left so.
+func fallback(t *tables.Table, cell *tables.Cell, half []int, r []int, p []float64) {
 	for k, ch := range t.Members {
 		r[ch] = cell.Diff[k]
 	}
-	pick := tables.Fallback(cell.Alive, r)
+	pick := tables.Fallback(cell.Alive, r, half)
 	for k, ch := range t.Members {
 		r[ch] = tables.Far
 		p[k] = 0
@@ -392,7 +393,7 @@ func (f *Formulation) eachSnapped(snap [][]float64, fn func(cell *tables.Cell, p
 				continue
 			}
 			tmp = slices.Grow(tmp[:0], m)[:m]
-			fallback(t, cell, r, tmp)
+			fallback(t, cell, f.Tables.Half, r, tmp)
 			fn(cell, tmp)
 		}
 	}

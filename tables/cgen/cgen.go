@@ -15,7 +15,8 @@
 //   - PFX_T, the largest reading gap that joins two channels into a group,
 //     and lo[] and hi[], the noise range of each channel in steps: the
 //     chooser computes the top group and its alive channels (channels not
-//     certainly below another) from them exactly as tables.Optimal does.
+//     certainly below another) from them exactly as tables.Optimal does;
+//     half[], the offsets of readings without a cell (tables.Optimal.Half).
 //   - groups[], one descriptor per group of channels with at least one
 //     cell, sorted by channel mask (found by binary search). A descriptor
 //     holds the box of the group's cells: for member k >= 1, the reading
@@ -30,7 +31,7 @@
 //     box has 2^32 points or more) with a parallel array refs[]. Options can
 //     force either form.
 //   - An index or refs entry is -1 for no cell (the chooser then picks as
-//     tables.Fallback), -2-c for a cell that picks channel c with
+//     tables.Fallback with the offsets half[]), -2-c for a cell that picks channel c with
 //     certainty, or otherwise the offset in cum[] of the cell's row.
 //   - cum[] holds one row of m-1 uint16 cumulative numerators per
 //     randomized cell of an m-member group; identical rows are stored once.
@@ -244,10 +245,17 @@ type data struct {
 	keys    []uint64
 	refs    []int32
 	keyBits int
+	half    []int64 // offsets of missing cells, in half steps
 }
 
 // build fills d from the fixed-point table o.
 func (d *data) build(o *tables.Optimal, mode Index, info *Info) error {
+	d.half = make([]int64, d.n)
+	for i := range d.half {
+		if o.Half != nil {
+			d.half[i] = int64(o.Half[i])
+		}
+	}
 	rows := make(map[string]int32)
 	var keyRow []byte
 	for _, t := range o.Tables {
@@ -401,6 +409,8 @@ func (d *data) write(w *bytes.Buffer, rep *strings.Replacer, l *tables.Layout) {
 	p("/* Noise range of each channel, in steps: offsets lo[i] .. hi[i]. */\n")
 	p("static const int32_t pfx_lo[PFX_N] = {%s};\n", joinInts(lo, ""))
 	p("static const int32_t pfx_hi[PFX_N] = {%s};\n\n", joinInts(hi, ""))
+	p("/* Offset of each channel for readings without a cell, in half steps:\n * such readings pick the alive channel with the highest 2*r[i] + half[i]. */\n")
+	p("static const int32_t pfx_half[PFX_N] = {%s};\n\n", joinInts(d.half, ""))
 
 	cum := make([]int64, len(d.cum))
 	for i, x := range d.cum {

@@ -10,6 +10,7 @@ import (
 	"os"
 	"os/exec"
 	"path/filepath"
+	"slices"
 	"strconv"
 	"strings"
 	"sync"
@@ -487,17 +488,24 @@ func TestCAgreesWithGo(t *testing.T) {
 		index               Index
 		edge, empty         bool
 		random              int
+		half                []int // offsets of missing cells
 	}{
-		{"two-auto", "two", "pick", IndexAuto, false, false, 100_000},
-		{"two-sorted", "two", "Pick2", IndexSorted, false, false, 100_000},
-		{"three-auto", "three", "pick", IndexAuto, false, false, 100_000},
-		{"three-dense", "three", "pw_sel", IndexDense, false, false, 100_000},
-		{"three-sorted", "three", "pw_sel", IndexSorted, false, false, 100_000},
-		{"three-edge-dense", "three", "edge", IndexDense, true, false, 20_000},
-		{"three-edge-sorted", "three", "edge", IndexSorted, true, false, 20_000},
+		{"two-auto", "two", "pick", IndexAuto, false, false, 100_000, nil},
+		{"two-sorted", "two", "Pick2", IndexSorted, false, false, 100_000, nil},
+		{"three-auto", "three", "pick", IndexAuto, false, false, 100_000, nil},
+		{"three-dense", "three", "pw_sel", IndexDense, false, false, 100_000, nil},
+		{"three-sorted", "three", "pw_sel", IndexSorted, false, false, 100_000, nil},
+		{"three-edge-dense", "three", "edge", IndexDense, true, false, 20_000, nil},
+		{"three-edge-sorted", "three", "edge", IndexSorted, true, false, 20_000, nil},
 		// No cells at all: every pick is the rule for a missing cell, and
 		// every array of the source is a placeholder.
-		{"three-no-cells", "three", "none", IndexAuto, false, true, 20_000},
+		{"three-no-cells", "three", "none", IndexAuto, false, true, 20_000, nil},
+		// Missing cells that pick by offsets, one of them odd (half a
+		// step: ties between readings are impossible), and offsets as
+		// large as the readings of the extremes.
+		{"three-edge-offsets", "three", "off", IndexDense, true, false, 20_000, []int{3, -2, 0}},
+		{"three-no-cells-offsets", "three", "off", IndexSorted, false, true, 20_000, []int{-7, 0, 4}},
+		{"three-no-cells-large-offsets", "three", "off", IndexAuto, false, true, 20_000, []int{math.MaxInt32, 0, math.MinInt32}},
 	}
 	for ci, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
@@ -508,6 +516,7 @@ func TestCAgreesWithGo(t *testing.T) {
 				if c.edge {
 					e.Tables = edgeTables(sol)
 				}
+				e.Tables.Half = c.half
 				sol = &e
 			}
 			t0 := time.Now()
@@ -516,6 +525,9 @@ func TestCAgreesWithGo(t *testing.T) {
 				t.Fatal(err)
 			}
 			genTime := time.Since(t0)
+			if !slices.Equal(code.Fixed.Table.Half, c.half) {
+				t.Fatalf("the fixed-point table has offsets %v, want %v", code.Fixed.Table.Half, c.half)
+			}
 			info := code.Info
 			switch {
 			case info.Cells != code.Fixed.Table.NumCells():

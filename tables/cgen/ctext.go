@@ -23,14 +23,18 @@ int pfx_choose(const int32_t readings[PFX_N], uint16_t u);
 
 // cCode is the chooser, after the data.
 const cCode = `
-/* Channel of alive with the highest reading, the lowest index on a tie. */
+/* Channel of alive with the highest reading plus its offset (the highest
+ * 2*r[i] + half[i]), the lowest index on a tie. */
 static int pfx_fallback(uint32_t alive, const int32_t r[PFX_N])
 {
     int i, best = -1;
+    int64_t top = 0;
 
     for (i = 0; i < PFX_N; i++) {
-        if (((alive >> i) & 1u) != 0 && (best < 0 || r[i] > r[best])) {
+        int64_t s = 2 * (int64_t)r[i] + (int64_t)pfx_half[i];
+        if (((alive >> i) & 1u) != 0 && (best < 0 || s > top)) {
             best = i;
+            top = s;
         }
     }
     return best;

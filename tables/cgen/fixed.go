@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"math"
 	"math/big"
+	"slices"
 	"sort"
 
 	"github.com/pickwise/pickwise/tables"
@@ -42,6 +43,7 @@ func Quantize(o *tables.Optimal) (*Fixed, error) {
 		return nil, fmt.Errorf("cgen: no table to quantize")
 	}
 	out := tables.NewOptimal(o.Layout)
+	out.Half = slices.Clone(o.Half)
 	if len(out.Tables) != len(o.Tables) {
 		return nil, fmt.Errorf("cgen: table has %d groups, its layout %d", len(o.Tables), len(out.Tables))
 	}
@@ -161,7 +163,7 @@ func (f *Fixed) WorstCase() (exact.Worst, error) {
 // fixed-point rule picks for readings r (in steps, one per channel) and the
 // uniform random number u, as the generated C function does. The top group
 // and its alive channels decide as in tables.Optimal; a forced choice or a
-// missing cell picks tables.Fallback; otherwise member i of the cell is
+// missing cell picks tables.Fallback with the table's offsets; otherwise member i of the cell is
 // picked for the smallest i with u < cum[i], cum[i] the sum of the
 // numerators of members 0..i, so member i is picked for exactly q_i of the
 // 65536 values of u. It returns -1 when len(r) is not the number of
@@ -177,7 +179,7 @@ func (f *Fixed) Choose(r []int32, u uint16) int {
 	}
 	_, alive, t, c := f.Table.Locate(ri)
 	if t == nil || c < 0 {
-		return tables.Fallback(alive, ri)
+		return tables.Fallback(alive, ri, f.Table.Half)
 	}
 	var cum uint32
 	for i, q := range Numerators(t.Cells[c]) {

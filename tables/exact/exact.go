@@ -15,6 +15,7 @@ import (
 	"math"
 	"math/big"
 	"math/bits"
+	"slices"
 
 	"github.com/pickwise/pickwise/discretize"
 	"github.com/pickwise/pickwise/tables"
@@ -168,7 +169,7 @@ func (t *Table) Nums(r []int, q []uint64) {
 	}
 	_, alive, tab, c := t.O.Locate(r)
 	if tab == nil || c < 0 {
-		q[tables.Fallback(alive, r)] = t.Denom
+		q[tables.Fallback(alive, r, t.O.Half)] = t.Denom
 		return
 	}
 	for i, ch := range tab.Members {
@@ -190,6 +191,7 @@ func Snap(o *tables.Optimal, bits uint) *tables.Optimal {
 // is positive) absorbing the residue so that every cell sums to den.
 func remap(o *tables.Optimal, den int64, num func(p float64) int64) *tables.Optimal {
 	out := tables.NewOptimal(o.Layout)
+	out.Half = slices.Clone(o.Half)
 	r := make([]int, o.Layout.N())
 	for ti, t := range o.Tables {
 		dst := out.Tables[ti]

@@ -6,6 +6,7 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"slices"
 	"strconv"
 	"strings"
 
@@ -35,11 +36,16 @@ import (
 //	               exact); 0 for a channel certainly below another; empty
 //	               when c_i is not in the group
 //
-// all d_steps columns come first, then all d_units, then all p, each in
-// channel order. Readings not covered by a cell pick the highest reading
-// among the channels of the top group not certainly below another, the
-// lowest-numbered on a tie (tables.Fallback); with one such channel the
-// choice is forced.
+//	half:c_i       present only when the tables have offsets: c_i's
+//	               offset for readings not covered by a cell, in half
+//	               steps, the same on every record
+//
+// all d_steps columns come first, then all d_units, then all p, then any
+// half, each in channel order. Readings not covered by a cell pick, among
+// the channels of the top group not certainly below another, the highest
+// reading plus its offset (the highest 2*r_i/step + half_i; the highest
+// reading without offsets), the lowest-numbered on a tie
+// (tables.Fallback); with one such channel the choice is forced.
 func CSV(w io.Writer, sol *result.Solution) error {
 	if err := check(sol); err != nil {
 		return err
@@ -50,13 +56,17 @@ func CSV(w io.Writer, sol *result.Solution) error {
 	n := len(nm)
 	var buf bytes.Buffer
 	cw := csv.NewWriter(&buf)
-	if err := cw.Write(csvHeader(nm)); err != nil {
+	half := sol.Tables.Half
+	if err := cw.Write(csvHeader(nm, half != nil)); err != nil {
 		return fmt.Errorf("render: %w", err)
 	}
 	rec := make([]string, 1+3*n)
+	for _, h := range half {
+		rec = append(rec, strconv.Itoa(h))
+	}
 	for _, t := range sol.Tables.Tables {
 		for _, c := range t.Cells {
-			for i := range rec {
+			for i := range 1 + 3*n {
 				rec[i] = ""
 			}
 			rec[0] = strings.Join(groupNames(nm, t), "+")
@@ -78,9 +88,13 @@ func CSV(w io.Writer, sol *result.Solution) error {
 }
 
 // csvHeader returns the CSV header for channels named nm.
-func csvHeader(nm []string) []string {
+func csvHeader(nm []string, half bool) []string {
 	h := []string{"group"}
-	for _, p := range []string{"d_steps:", "d_units:", "p:"} {
+	prefixes := []string{"d_steps:", "d_units:", "p:"}
+	if half {
+		prefixes = append(prefixes, "half:")
+	}
+	for _, p := range prefixes {
 		for _, name := range nm {
 			h = append(h, p+name)
 		}
@@ -103,13 +117,18 @@ func ReadCSV(r io.Reader, m *discretize.Model, l *tables.Layout) (*tables.Optima
 	}
 	n := len(b.names)
 	cr := csv.NewReader(r)
-	cr.FieldsPerRecord = 1 + 3*n
+	cr.FieldsPerRecord = 0 // every record as long as the header
 	cr.ReuseRecord = true
 	head, err := cr.Read()
 	if err != nil {
 		return nil, fmt.Errorf("render: csv header: %w", err)
 	}
-	want := csvHeader(b.names)
+	withHalf := len(head) == 1+4*n
+	if !withHalf && len(head) != 1+3*n {
+		return nil, fmt.Errorf("render: csv header has %d columns, want %d (or %d with offsets)", len(head), 1+3*n, 1+4*n)
+	}
+	want := csvHeader(b.names, withHalf)
+	var half []string // the offsets of the first record, as written
 	for i := range want {
 		if head[i] != want[i] {
 			return nil, fmt.Errorf("render: csv header column %d is %q, want %q", i+1, head[i], want[i])
@@ -124,6 +143,23 @@ func ReadCSV(r io.Reader, m *discretize.Model, l *tables.Layout) (*tables.Optima
 			return nil, fmt.Errorf("render: csv: %w", err)
 		}
 		line, _ := cr.FieldPos(0)
+		if withHalf {
+			got := rec[1+3*n:]
+			if half == nil {
+				half = slices.Clone(got)
+				h := make([]int, n)
+				for ch, x := range half {
+					if h[ch], err = strconv.Atoi(x); err != nil {
+						return nil, fmt.Errorf("render: csv line %d: half:%s %q is not an integer", line, b.names[ch], x)
+					}
+				}
+				if err := b.setHalf(h); err != nil {
+					return nil, fmt.Errorf("render: csv line %d: %w", line, err)
+				}
+			} else if !slices.Equal(got, half) {
+				return nil, fmt.Errorf("render: csv line %d: offsets %v differ from the first record's %v", line, got, half)
+			}
+		}
 		var c cellText
 		for ch := 0; ch < n; ch++ {
 			s, un, p := rec[1+ch], rec[1+n+ch], rec[1+2*n+ch]

@@ -19,11 +19,13 @@ const CellsFormat = "pickwise-cells/1"
 
 // cellsFile is the JSON document of JSON and ReadJSON.
 type cellsFile struct {
-	Format   string     `json:"format"`
-	Channels []string   `json:"channels"`
-	Step     string     `json:"step"`
-	Unit     string     `json:"unit"`
-	Cells    []jsonCell `json:"cells"`
+	Format   string   `json:"format"`
+	Channels []string `json:"channels"`
+	Step     string   `json:"step"`
+	Unit     string   `json:"unit"`
+	// MissingHalf: offsets of readings without a cell, in half steps.
+	MissingHalf []int      `json:"missing_cell_half_steps,omitempty"`
+	Cells       []jsonCell `json:"cells"`
 }
 
 // jsonCell is one table cell.
@@ -54,10 +56,15 @@ type jsonCell struct {
 //	              float64 (table probabilities are multiples of 2^-48);
 //	              0 for a channel certainly below another
 //
-// Readings not covered by a cell pick the highest reading among the
-// channels of the top group not certainly below another, the
-// lowest-numbered on a tie (tables.Fallback); with one such channel the
-// choice is forced.
+//	missing_cell_half_steps
+//	            present only when the tables have offsets: per channel,
+//	            in half steps, the offset of readings not covered by a cell
+//
+// Readings not covered by a cell pick, among the channels of the top group
+// not certainly below another, the highest reading plus its offset (the
+// highest 2*r_i/step + missing_cell_half_steps[i]; the highest reading
+// without offsets), the lowest-numbered on a tie (tables.Fallback); with
+// one such channel the choice is forced.
 func JSON(w io.Writer, sol *result.Solution) error {
 	if err := check(sol); err != nil {
 		return err
@@ -66,11 +73,12 @@ func JSON(w io.Writer, sol *result.Solution) error {
 	u := newUnits(m)
 	nm := names(m)
 	head := struct {
-		Format   string   `json:"format"`
-		Channels []string `json:"channels"`
-		Step     string   `json:"step"`
-		Unit     string   `json:"unit"`
-	}{CellsFormat, nm, u.of(1), m.Unit}
+		Format      string   `json:"format"`
+		Channels    []string `json:"channels"`
+		Step        string   `json:"step"`
+		Unit        string   `json:"unit"`
+		MissingHalf []int    `json:"missing_cell_half_steps,omitempty"`
+	}{CellsFormat, nm, u.of(1), m.Unit, sol.Tables.Half}
 	var buf bytes.Buffer
 	enc := json.NewEncoder(&buf)
 	enc.SetEscapeHTML(false)
@@ -135,6 +143,9 @@ func ReadJSON(r io.Reader, m *discretize.Model, l *tables.Layout) (*tables.Optim
 	step, ok := new(big.Rat).SetString(f.Step)
 	if !ok || step.Cmp(result.StepRat(m.Step)) != 0 {
 		return nil, fmt.Errorf("render: json step %q is not the model's step %v", f.Step, m.Step)
+	}
+	if err := b.setHalf(f.MissingHalf); err != nil {
+		return nil, fmt.Errorf("render: json missing_cell_half_steps: %w", err)
 	}
 	for i, jc := range f.Cells {
 		k := len(jc.Group)

@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"math"
 	"math/big"
+	"slices"
 	"strconv"
 	"strings"
 
@@ -103,7 +104,7 @@ func (b *builder) add(c cellText) error {
 	}
 	alive := b.l.Alive(set, r)
 	if alive.Len() < 2 {
-		return fmt.Errorf("group %s cell %v: a cell where only channel %q is not certainly below another is forced, not a table cell", g, diff, b.names[tables.Fallback(alive, r)])
+		return fmt.Errorf("group %s cell %v: a cell where only channel %q is not certainly below another is forced, not a table cell", g, diff, b.names[tables.Fallback(alive, r, nil)])
 	}
 	var sum float64
 	for k, ch := range mem {
@@ -124,6 +125,24 @@ func (b *builder) add(c cellText) error {
 }
 
 func (b *builder) finish() (*tables.Optimal, error) { return b.o, nil }
+
+// setHalf sets the offsets of readings without a cell, in half steps (nil:
+// none).
+func (b *builder) setHalf(half []int) error {
+	if half == nil {
+		return nil
+	}
+	if len(half) != len(b.names) {
+		return fmt.Errorf("%d offsets for %d channels", len(half), len(b.names))
+	}
+	for i, h := range half {
+		if h < math.MinInt32 || h > math.MaxInt32 {
+			return fmt.Errorf("offset %d of channel %q is out of range", h, b.names[i])
+		}
+	}
+	b.o.Half = slices.Clone(half)
+	return nil
+}
 
 // parseProb reads a probability in [0, 1] written as a decimal or as a
 // fraction "a/b".

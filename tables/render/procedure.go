@@ -252,12 +252,12 @@ func (p *procedure) diffName(t *tables.Table, k int) string {
 func (p *procedure) decide(t *tables.Table, r []int) (inGroup bool, q []int, forced int) {
 	g, alive, tt, c := p.pr.Tables.Locate(r)
 	if g != t.Group {
-		return false, nil, tables.Fallback(alive, r)
+		return false, nil, tables.Fallback(alive, r, p.pr.Tables.Half)
 	}
 	if tt != nil && c >= 0 {
 		return true, nums(tt.Cells[c].P), -1
 	}
-	return true, nil, tables.Fallback(alive, r)
+	return true, nil, tables.Fallback(alive, r, p.pr.Tables.Half)
 }
 
 // draws returns the ranges of a draw from 1 to Den, in member order, as
@@ -378,8 +378,16 @@ func (p *procedure) pairs(t *tables.Table) section {
 
 // outside is the note for readings of a group without an entry.
 func (p *procedure) outside(t *tables.Table, where string) string {
-	return fmt.Sprintf("Readings that make %s the group but have no entry %s: choose, among the channels not certainly below another, the one with the highest reading (the first in channel order on a tie). With tables computed by pickwise only one such channel is left.",
-		strings.TrimPrefix(p.groupTitle(t), "Group "), where)
+	how := "the one with the highest reading"
+	if h := p.pr.Tables.Half; h != nil {
+		var parts []string
+		for _, ch := range t.Members {
+			parts = append(parts, fmt.Sprintf("%s %s%s", p.lab[ch], p.u.ofHalf(h[ch]), p.u.suffix()))
+		}
+		how = "the one with the highest reading plus its offset (" + strings.Join(parts, ", ") + ")"
+	}
+	return fmt.Sprintf("Readings that make %s the group but have no entry %s: choose, among the channels not certainly below another, %s (the first in channel order on a tie).",
+		strings.TrimPrefix(p.groupTitle(t), "Group "), where, how)
 }
 
 // grid is the procedure of a three-channel group: rows r_2 - r_1, columns

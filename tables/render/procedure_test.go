@@ -440,3 +440,26 @@ func TestTextRows(t *testing.T) {
 		})
 	}
 }
+
+// TestProcedureOffsets: with offsets for missing cells the printed rule
+// says how such readings choose, with each offset in reading units (half
+// steps of 0.5 °C: 1 is +0.25 °C, -3 is -0.75 °C).
+func TestProcedureOffsets(t *testing.T) {
+	sol := withHalf(solve(t, "three", threeChannel), []int{1, -3, 0})
+	var md bytes.Buffer
+	if err := Markdown(&md, sol, Options{}); err != nil {
+		t.Fatal(err)
+	}
+	for _, s := range []string{"the highest reading plus its offset (", "+0.25 °C", "-0.75 °C", "0 °C)"} {
+		if !strings.Contains(md.String(), s) {
+			t.Errorf("the procedure lacks %q", s)
+		}
+	}
+	var plain bytes.Buffer
+	if err := Markdown(&plain, solve(t, "three", threeChannel), Options{}); err != nil {
+		t.Fatal(err)
+	}
+	if strings.Contains(plain.String(), "offset (") {
+		t.Error("the procedure of tables without offsets mentions offsets")
+	}
+}

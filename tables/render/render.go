@@ -143,6 +143,20 @@ func (u units) of(k int) string {
 	return r.FloatString(u.dec)
 }
 
+// ofHalf returns h half steps in reading units, signed ("+0.5", "-1",
+// "0"), as an exact decimal.
+func (u units) ofHalf(h int) string {
+	r := new(big.Rat).Mul(big.NewRat(int64(h), 2), u.step)
+	s := r.FloatString(u.dec + 1)
+	if u.dec+1 > 0 {
+		s = strings.TrimRight(strings.TrimRight(s, "0"), ".")
+	}
+	if r.Sign() > 0 {
+		s = "+" + s
+	}
+	return s
+}
+
 // suffix returns " unit", or "" without a unit.
 func (u units) suffix() string {
 	if u.unit == "" {

@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"math"
 	"math/big"
+	"slices"
 	"sort"
 
 	"github.com/pickwise/pickwise/tables"
@@ -58,6 +59,7 @@ func Round(sol *result.Solution) (*Printed, error) {
 func roundTables(o *tables.Optimal) (*tables.Optimal, error) {
 	l := o.Layout
 	out := tables.NewOptimal(l)
+	out.Half = slices.Clone(o.Half)
 	r := make([]int, l.N())
 	for ti, t := range o.Tables {
 		dst := out.Tables[ti]

@@ -4,6 +4,7 @@ import (
 	"bytes"
 	"io"
 	"math"
+	"slices"
 	"strings"
 	"testing"
 
@@ -19,6 +20,9 @@ func sameTables(t *testing.T, got, want *tables.Optimal) {
 	t.Helper()
 	if len(got.Tables) != len(want.Tables) {
 		t.Fatalf("%d tables, want %d", len(got.Tables), len(want.Tables))
+	}
+	if !slices.Equal(got.Half, want.Half) || (got.Half == nil) != (want.Half == nil) {
+		t.Fatalf("offsets of missing cells %v, want %v", got.Half, want.Half)
 	}
 	for i, w := range want.Tables {
 		g := got.Tables[i]
@@ -65,6 +69,53 @@ func solutions(t *testing.T) []struct {
 		{"two channels, step 0.1", solve(t, "two", twoChannel)},
 		{"three channels", solve(t, "three", threeChannel)},
 		{"four channels", solve(t, "four", fourChannel)},
+		{"three channels, offsets for missing cells", withHalf(solve(t, "three", threeChannel), []int{1, -3, 0})},
+	}
+}
+
+// withHalf returns a copy of sol whose tables give missing cells the
+// offsets half.
+func withHalf(sol *result.Solution, half []int) *result.Solution {
+	s := *sol
+	o := *sol.Tables
+	o.Half = half
+	s.Tables = &o
+	return &s
+}
+
+// TestHalfErrors: offsets of missing cells that do not fit the model, or
+// that differ between CSV records, are refused with a message naming them.
+func TestHalfErrors(t *testing.T) {
+	sol := withHalf(solve(t, "three", threeChannel), []int{1, -3, 0})
+	var csvBuf, jsonBuf bytes.Buffer
+	if err := CSV(&csvBuf, sol); err != nil {
+		t.Fatal(err)
+	}
+	if err := JSON(&jsonBuf, sol); err != nil {
+		t.Fatal(err)
+	}
+	lines := strings.SplitAfter(csvBuf.String(), "\n")
+	if len(lines) < 4 || !strings.HasSuffix(lines[2], ",1,-3,0\n") {
+		t.Fatalf("csv records do not end with the offsets: %q", lines[:min(3, len(lines))])
+	}
+	changed := lines[0] + lines[1] + strings.TrimSuffix(lines[2], ",1,-3,0\n") + ",2,-3,0\n" + strings.Join(lines[3:], "")
+	for _, tc := range []struct {
+		name, format, text, want string
+	}{
+		{"csv offsets differ", "csv", changed, "differ from the first record's"},
+		{"csv offset not an integer", "csv", strings.Replace(csvBuf.String(), ",1,-3,0\n", ",1,-3,x\n", 1), "is not an integer"},
+		{"json too few offsets", "json", strings.Replace(jsonBuf.String(), `"missing_cell_half_steps":[1,-3,0]`, `"missing_cell_half_steps":[1,-3]`, 1), "2 offsets for 3 channels"},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			read := ReadCSV
+			if tc.format == "json" {
+				read = ReadJSON
+			}
+			_, err := read(strings.NewReader(tc.text), sol.Model, sol.Layout)
+			if err == nil || !strings.Contains(err.Error(), tc.want) {
+				t.Errorf("error %v, want one containing %q", err, tc.want)
+			}
+		})
 	}
 }
 

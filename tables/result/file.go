@@ -9,6 +9,7 @@ import (
 	"math/big"
 	"os"
 	"path/filepath"
+	"slices"
 
 	"github.com/pickwise/pickwise/discretize"
 	"github.com/pickwise/pickwise/tables"
@@ -37,8 +38,14 @@ type File struct {
 	// TableDen: every table probability is an integer over table_den.
 	TableDen uint64 `json:"table_den"`
 	// ProbBits: prior weights are multiples of 2^-prob_bits.
-	ProbBits    uint            `json:"prob_bits"`
-	Tables      []FileTable     `json:"tables"`
+	ProbBits uint        `json:"prob_bits"`
+	Tables   []FileTable `json:"tables"`
+	// MissingHalf holds, per channel, the offset in half steps of the
+	// readings that no table cell covers: they pick the channel not
+	// certainly below another with the highest 2*reading/step +
+	// offset, the first in channel order on a tie. Absent: no offsets
+	// (the highest reading).
+	MissingHalf []int           `json:"missing_cell_half_steps,omitempty"`
 	Prior       []FilePrior     `json:"prior"`
 	Certificate FileCertificate `json:"certificate"`
 	Greedy      FileFigure      `json:"greedy"`
@@ -197,6 +204,7 @@ func NewFile(s *Solution, modelTOML string) *File {
 		}
 		f.Tables = append(f.Tables, ft)
 	}
+	f.MissingHalf = slices.Clone(s.Tables.Half)
 	for k, v := range s.Configs {
 		f.Prior = append(f.Prior, FilePrior{Values: fileValues(v), Weight: ratString(s.Weights[k], s.ProbBits)})
 	}

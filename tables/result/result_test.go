@@ -10,6 +10,7 @@ import (
 	"math/big"
 	"math/rand/v2"
 	"os"
+	"slices"
 	"strings"
 	"testing"
 
@@ -385,5 +386,65 @@ func TestGapsInSupport(t *testing.T) {
 	// Every rule's worst case is at least every lower bound.
 	if result.Float(b.Upper) < result.Float(a.Lower)-1e-15 || result.Float(a.Upper) < result.Float(b.Lower)-1e-15 {
 		t.Errorf("bounds cross: [%v, %v] and [%v, %v]", result.Float(a.Lower), result.Float(a.Upper), result.Float(b.Lower), result.Float(b.Upper))
+	}
+}
+
+// TestCGOffsetsFile: constraint generation on skewed noise gives missing
+// cells the offset rule's offsets; the result file records them, verifies
+// as written, and fails to verify when an offset is changed (the exact
+// worst case of the tables then differs from the stated upper bound) or
+// has the wrong length. The bounds meet the direct LP's.
+func TestCGOffsetsFile(t *testing.T) {
+	m := model(t, 1,
+		[]float64{-3, 0.11, 0.16, 0.2, 0.19, 0.34},
+		[]float64{0, 0.28, 0.1, 0.08, 0.26, 0.28},
+		[]float64{-3, 0.15, 0.16, 0.48, 0.08, 0.13})
+	s, err := result.Solve(context.Background(), m, result.Options{Method: result.MethodCG})
+	if err != nil {
+		t.Fatal(err)
+	}
+	direct := solve(t, m)
+	if !s.Converged || s.Tables.Half == nil || !slices.Equal(s.Tables.Half, s.OffsetHalf) {
+		t.Fatalf("converged %v, offsets of missing cells %v, offset rule %v", s.Converged, s.Tables.Half, s.OffsetHalf)
+	}
+	if d := math.Abs(result.Float(s.Upper) - result.Float(direct.Upper)); d > 1e-9 {
+		t.Errorf("upper bound %v, the direct LP's %v", result.Float(s.Upper), result.Float(direct.Upper))
+	}
+	checkBounds(t, "cg with offsets", s)
+	var buf bytes.Buffer
+	if err := result.NewFile(s, "").Encode(&buf); err != nil {
+		t.Fatal(err)
+	}
+	data := buf.Bytes()
+	if err := verifyJSON(t, data); err != nil {
+		t.Fatalf("untouched file: %v", err)
+	}
+	for _, tc := range []struct {
+		name string
+		edit func(h []int) []int
+		want string
+	}{
+		{"offsets negated", func(h []int) []int {
+			for i := range h {
+				h[i] = -h[i]
+			}
+			return h
+		}, "upper bound"},
+		{"too few offsets", func(h []int) []int { return h[:2] }, "missing_cell_half_steps"},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			f, err := result.Decode(data, "x")
+			if err != nil {
+				t.Fatal(err)
+			}
+			f.MissingHalf = tc.edit(f.MissingHalf)
+			var b bytes.Buffer
+			f.Encode(&b)
+			err = verifyJSON(t, b.Bytes())
+			var mm *result.Mismatch
+			if !errors.As(err, &mm) || !strings.Contains(err.Error(), tc.want) {
+				t.Errorf("got %v, want a mismatch naming %q", err, tc.want)
+			}
+		})
 	}
 }

@@ -2,7 +2,9 @@ package result
 
 import (
 	"fmt"
+	"math"
 	"math/big"
+	"slices"
 	"strconv"
 
 	"github.com/pickwise/pickwise/discretize"
@@ -135,6 +137,17 @@ func (f *File) Solution() (*Solution, error) {
 		byName[c.Name] = i
 	}
 	o := tables.NewOptimal(l)
+	if f.MissingHalf != nil {
+		if len(f.MissingHalf) != l.N() {
+			return nil, mismatch("missing_cell_half_steps", "%d offsets for %d channels", len(f.MissingHalf), l.N())
+		}
+		for i, h := range f.MissingHalf {
+			if h < math.MinInt32 || h > math.MaxInt32 {
+				return nil, mismatch("missing_cell_half_steps", "offset %d of channel %q is out of range", h, m.Channels[i].Name)
+			}
+		}
+		o.Half = slices.Clone(f.MissingHalf)
+	}
 	for ti, ft := range f.Tables {
 		var g tables.Set
 		for _, name := range ft.Group {

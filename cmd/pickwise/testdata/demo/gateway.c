@@ -7,8 +7,9 @@
  * 11356 bytes of constant data.
  *
  * A cell reference is -1 for no cell (pick the alive channel with the
- * highest reading, the lowest index on a tie), -2 - c for a cell that picks
- * channel c with certainty, or the offset of the cell's row in gateway_cum.
+ * highest reading plus its offset in gateway_half, the lowest index on a
+ * tie), -2 - c for a cell that picks channel c with certainty, or the
+ * offset of the cell's row in gateway_cum.
  * The key of a cell is its reading differences d_k = r_k - r_first (k the
  * member positions 1 .. m-1), less dmin[k], as mixed-radix digits with
  * radices dlen[k], member 1 the least significant.
@@ -25,6 +26,10 @@ typedef uint32_t gateway_key_t;
 /* Noise range of each channel, in steps: offsets lo[i] .. hi[i]. */
 static const int32_t gateway_lo[GATEWAY_N] = {-4, -2, -1};
 static const int32_t gateway_hi[GATEWAY_N] = {4, 1, 4};
+
+/* Offset of each channel for readings without a cell, in half steps:
+ * such readings pick the alive channel with the highest 2*r[i] + half[i]. */
+static const int32_t gateway_half[GATEWAY_N] = {0, 0, 0};
 
 /* Cumulative numerators over 65536 of the randomized cells, one row of
  * m-1 values per cell of an m-member group. */
@@ -297,14 +302,18 @@ static const struct gateway_group gateway_groups[GATEWAY_NGROUPS] = {
     {0x7u, 0, 35, 2750, {0, -26, -27}, {1, 50, 55}}
 };
 
-/* Channel of alive with the highest reading, the lowest index on a tie. */
+/* Channel of alive with the highest reading plus its offset (the highest
+ * 2*r[i] + half[i]), the lowest index on a tie. */
 static int gateway_fallback(uint32_t alive, const int32_t r[GATEWAY_N])
 {
     int i, best = -1;
+    int64_t top = 0;
 
     for (i = 0; i < GATEWAY_N; i++) {
-        if (((alive >> i) & 1u) != 0 && (best < 0 || r[i] > r[best])) {
+        int64_t s = 2 * (int64_t)r[i] + (int64_t)gateway_half[i];
+        if (((alive >> i) & 1u) != 0 && (best < 0 || s > top)) {
             best = i;
+            top = s;
         }
     }
     return best;
