@@ -38,17 +38,17 @@ type subset struct {
 	x       [][]float64 // X_i of each member over a tile's reading box
 	r       []float64   // regrets over a tile
 	need    []*spans    // what each stage needs for every configuration
-	ni      []*spans    // what each stage needs for one member
+	far     []int       // the channels outside the subset
 	scratch []scratch
 	fault   atomic.Bool // the rule gave probability to a channel outside the subset
 }
 
 // scratch is one goroutine's work space.
 type scratch struct {
-	r   []int
-	p   []float64
-	tmp []float64
-	idx []int
+	r        []int
+	p        []float64
+	tmp      []float64
+	idx, aux []int
 }
 
 func newSubset(l *tables.Layout, rule tables.Rule, q tables.Set, d, workers int, maxBytes int64) (*subset, error) {
@@ -98,6 +98,12 @@ func newSubset(l *tables.Layout, rule tables.Rule, q tables.Set, d, workers int,
 		sc.p = make([]float64, n)
 		sc.tmp = make([]float64, chunk)
 		sc.idx = make([]int, k)
+		sc.aux = make([]int, k)
+	}
+	for c := 0; c < n; c++ {
+		if !q.Has(c) {
+			s.far = append(s.far, c)
+		}
 	}
 	return s, nil
 }
@@ -113,8 +119,9 @@ func (s *subset) bytes() float64 {
 		xs *= float64(s.xext(s.tile, a))
 		rs *= float64(t)
 	}
-	// Spans: two sets of k+2 stages of at most xs / (last extent) rows,
-	// 16 bytes each.
+	// Spans: k+2 stages of at most xs / (last extent) rows, 16 bytes
+	// each, counted twice: the margin keeps the tiles, and so the order of
+	// the reports, as they have always been.
 	spans := float64(2*(s.k+2)) * 16 * xs / float64(s.xext(s.tile, s.k-1))
 	per := float64(len(s.l.Lo))*16 + float64(s.k)*16 + chunk*8
 	return 8*(float64(s.k+1)*xs+rs) + spans + float64(s.workers)*per
@@ -138,7 +145,6 @@ func (s *subset) run(fn func(v []int, regret float64)) error {
 	}
 	s.r = make([]float64, rsize)
 	s.need = make([]*spans, k+2)
-	s.ni = make([]*spans, k+2)
 	t := make([]int, k)
 	ulo := make([]int, k)
 	ext := make([]int, k)
@@ -175,14 +181,20 @@ func next(t, ext []int) bool {
 	return false
 }
 
-// decode sets idx to the row-major multi-index of flat index i within
-// extents ext and returns sum idx[a]*stride[a].
-func decode(i int, ext, stride, idx []int) int {
-	off := 0
+// setIndex sets idx to the row-major multi-index of flat index i within
+// extents ext.
+func setIndex(idx, ext []int, i int) {
 	for a := len(ext) - 1; a >= 0; a-- {
 		idx[a] = i % ext[a]
 		i /= ext[a]
-		off += idx[a] * stride[a]
+	}
+}
+
+// dot returns sum idx[a]*stride[a].
+func dot(idx, stride []int) int {
+	off := 0
+	for a, i := range idx {
+		off += i * stride[a]
 	}
 	return off
 }
@@ -243,10 +255,21 @@ func parallel(workers, units int, fn func(w, lo, hi int)) {
 // indices along the last axis whose values are needed; lo > hi for a row
 // that needs none. Values outside the spans are never computed and never
 // read by a needed value.
+//
+// An empty row is stored as emptyLo, emptyHi (or these shifted by a few
+// steps), so that the hull of several rows is the least lo and the
+// greatest hi, empty or not.
 type spans struct {
 	ext    []int // extents of the axes before the last
 	lo, hi []int
 }
+
+// The bounds of an empty row of spans: far beyond any index, and far from
+// overflowing when shifted by the spread of a noise pmf.
+const (
+	emptyLo = math.MaxInt / 4
+	emptyHi = math.MinInt / 4
+)
 
 // reuse returns sp, allocated if nil, resized to extents ext; its
 // intervals are unspecified.
@@ -294,7 +317,7 @@ func (s *subset) regrets(ulo, ext []int) (*spans, error) {
 
 	// Work backwards from the configurations to the values each stage
 	// needs.
-	need, ni := s.need, s.ni
+	need := s.need
 	need[k+1] = s.validSpans(need[k+1], ulo, ext)
 	need[k] = s.diagDilate(need[k], need[k+1])
 	for ax := k - 1; ax >= 0; ax-- {
@@ -308,60 +331,156 @@ func (s *subset) regrets(ulo, ext []int) (*spans, error) {
 		return nil, fmt.Errorf("fast: the rule gives probability to a channel outside subset %v", s.mem)
 	}
 	rs := s.r[:prod(ext)]
-	clear(rs)
+	s.clearSpans(rs, ext[k-1], need[k+1])
+	g := make([]region, k+2)
 	for i := range s.mem {
 		if !nonzero[i] {
 			continue
 		}
-		// Member i adds nothing where it holds the highest value: work
-		// back from the configurations where it does not.
-		ni[k+1] = s.belowTop(ni[k+1], ulo, need[k+1], i)
-		ni[k] = s.diagDilate(ni[k], ni[k+1])
-		for ax := k - 1; ax >= 0; ax-- {
-			ni[ax] = s.axisDilate(ni[ax], ni[ax+1], ax)
+		// Member i adds nothing where it holds the highest value: each
+		// stage computes only where that is not the case for some
+		// configuration that reads it.
+		for st := 1; st <= k+1; st++ {
+			s.region(&g[st], i, st, ulo)
 		}
 		a := s.x[i][:size]
 		for ax := 0; ax < k; ax++ {
-			s.axisPass(a, xst, ax, ni[ax+1], s.stageExt(ext, ax+1))
+			s.axisPass(a, xst, ax, need[ax+1], &g[ax+1], s.stageExt(ext, ax+1))
 		}
-		s.diagPass(a, xst, ulo, ext, i, rs, ni[k+1])
+		s.diagPass(a, xst, ulo, ext, i, rs, need[k+1], &g[k+1])
 	}
 	return need[k+1], nil
 }
 
-// belowTop returns the part of the spans cfg (of the tile with lowest
-// corner ulo) where member i's value is below the highest: where
-// max u - u_i > 0, with u_0 = 0.
-func (s *subset) belowTop(dst *spans, ulo []int, cfg *spans, i int) *spans {
-	k := s.k
-	out := reuse(dst, cfg.ext)
-	rst := strides(cfg.ext)
-	idx := make([]int, k-1)
-	for row := range cfg.lo {
-		lo, hi := cfg.lo[row], cfg.hi[row]
-		decode(row, cfg.ext, rst, idx)
-		top, ui := 0, 0 // highest fixed value, and u_i if fixed
-		for a := range idx {
-			u := ulo[a] + idx[a]
-			top = max(top, u)
-			if a+1 == i {
-				ui = u
+// clearSpans sets to zero the entries of rs (rows of length last) in the
+// spans cfg.
+func (s *subset) clearSpans(rs []float64, last int, cfg *spans) {
+	parallel(s.workers, len(cfg.lo), func(_, lo, hi int) {
+		for row := lo; row < hi; row++ {
+			if a, b := cfg.lo[row], cfg.hi[row]; a <= b {
+				clear(rs[row*last+a : row*last+b+1])
 			}
 		}
+	})
+}
+
+// region is, for one member and one stage of the computation, the set
+// of values that the member's terms of the regret can read: those within
+// reach, through the passes after the stage, of a configuration where the
+// member's weight max(0, u_1, ..., u_k) - u_i is not zero. Those
+// configurations form a union of half-spaces (u_j > u_i for some j > 0,
+// or u_i < 0; for member 0, u_j > 0 for some j), and a pass reads values
+// within the spread of a noise pmf, so at every stage the set is the union
+// of the same half-spaces moved by constants. Within a row (every axis but
+// the last fixed) it is the whole row or a half-line, which clip
+// intersects with the row's span. The needed spans and the region of a
+// stage each hold everything that those of the next stage read, so their
+// intersection does too.
+//
+// In the index coordinates x of the stage, with a_j = j-1 the axis of
+// member j:
+//
+//   - member 0: the union over j of x_(a_j) > c[a_j];
+//   - member i > 0: the union over j != i, j > 0, of
+//     x_(a_j) - x_(a_i) > c[a_j], and x_(a_i) < b.
+type region struct {
+	i    int   // the member
+	last int   // the last axis, k-1
+	c    []int // threshold of each axis
+	b    int
+}
+
+// region sets g to the region of member i at stage st in 1..k+1 (the
+// output of axis pass st-1, or of the diagonal pass for st = k+1) of the
+// tile with lowest corner ulo.
+func (s *subset) region(g *region, i, st int, ulo []int) {
+	k := s.k
+	hi0 := s.lo[0] + s.w[0]
+	// corner returns the value difference of index 0 along axis a.
+	corner := func(a int) int {
 		switch {
-		case i == k:
-			// u_i is the last difference x: below top when x < top.
-			hi = min(hi, top-1-ulo[k-1])
-		case ui == top:
-			// u_i is the highest fixed value: below top when x > u_i.
-			lo = max(lo, ui+1-ulo[k-1])
+		case st == k+1:
+			return ulo[a]
+		case a < st:
+			return ulo[a] - hi0
+		default:
+			return ulo[a] + s.lo[a+1] - hi0
 		}
-		if lo > hi {
-			lo, hi = 1, 0
-		}
-		out.lo[row], out.hi[row] = lo, hi
 	}
-	return out
+	// In value differences z, the passes after stage st move the
+	// half-spaces of the configurations: the pass along axis a reads z
+	// from z - t e_a, t in [lo, hi] of member a+1, and the diagonal pass
+	// reads z from z + t (1, ..., 1), t in [lo_0, hi_0].
+	low := func(a int) int { // what a lower bound on z_a gains
+		if st <= k && a >= st {
+			return s.lo[a+1]
+		}
+		return 0
+	}
+	high := func(a int) int { // what an upper bound on z_a gains
+		if st <= k && a >= st {
+			return s.lo[a+1] + s.w[a+1]
+		}
+		return 0
+	}
+	g.i, g.last = i, k-1
+	if len(g.c) != k {
+		g.c = make([]int, k)
+	}
+	if i == 0 {
+		for a := range g.c {
+			c := low(a) // z_a > c
+			if st <= k {
+				c -= hi0
+			}
+			g.c[a] = c - corner(a)
+		}
+		return
+	}
+	ai := i - 1
+	for a := range g.c {
+		if a != ai {
+			// z_a - z_ai > c
+			g.c[a] = low(a) - high(ai) - corner(a) + corner(ai)
+		}
+	}
+	b := high(ai) // z_ai < b
+	if st <= k {
+		b -= s.lo[0]
+	}
+	g.b = b - corner(ai)
+}
+
+// clip returns the part of the span [lo, hi] of the row idx (the indices
+// of the axes before the last) within the region; lo > hi if none.
+func (g *region) clip(idx []int, lo, hi int) (int, int) {
+	l := g.last
+	switch ai := g.i - 1; {
+	case g.i == 0:
+		for a, x := range idx {
+			if x > g.c[a] {
+				return lo, hi
+			}
+		}
+		return max(lo, g.c[l]+1), hi
+	case ai == l:
+		b := g.b
+		for a, x := range idx {
+			b = max(b, x-g.c[a])
+		}
+		return lo, min(hi, b-1)
+	default:
+		xi := idx[ai]
+		if xi < g.b {
+			return lo, hi
+		}
+		for a, x := range idx {
+			if a != ai && x-xi > g.c[a] {
+				return lo, hi
+			}
+		}
+		return max(lo, xi+g.c[l]+1), hi
+	}
 }
 
 // lastRange returns the values x of the last difference for which
@@ -393,21 +512,26 @@ func (s *subset) lastRange(u []int) (lo, hi int) {
 func (s *subset) validSpans(dst *spans, ulo, ext []int) *spans {
 	k := s.k
 	out := reuse(dst, ext[:k-1])
-	rst := strides(out.ext)
 	last := ext[k-1]
-	u := make([]int, k-1)
-	for row := range out.lo {
-		decode(row, out.ext, rst, u)
-		for a := range u {
-			u[a] += ulo[a]
+	parallel(s.workers, len(out.lo), func(wk, lo, hi int) {
+		sc := &s.scratch[wk]
+		idx, u := sc.idx[:k-1], sc.aux[:k-1]
+		setIndex(idx, out.ext, lo)
+		for row := lo; row < hi; row++ {
+			if row > lo {
+				next(idx, out.ext)
+			}
+			for a := range u {
+				u[a] = ulo[a] + idx[a]
+			}
+			l, h := s.lastRange(u)
+			l, h = max(l-ulo[k-1], 0), min(h-ulo[k-1], last-1)
+			if l > h {
+				l, h = emptyLo, emptyHi
+			}
+			out.lo[row], out.hi[row] = l, h
 		}
-		lo, hi := s.lastRange(u)
-		lo, hi = max(lo-ulo[k-1], 0), min(hi-ulo[k-1], last-1)
-		if lo > hi {
-			lo, hi = 1, 0
-		}
-		out.lo[row], out.hi[row] = lo, hi
-	}
+	})
 	return out
 }
 
@@ -416,56 +540,61 @@ func (s *subset) validSpans(dst *spans, ulo, ext []int) *spans {
 // [0, w_0].
 func (s *subset) diagDilate(dst, out *spans) *spans {
 	w0 := s.w[0]
-	ext := append([]int(nil), out.ext...)
+	n := len(out.ext)
+	ext := make([]int, n)
 	for a := range ext {
-		ext[a] += w0
+		ext[a] = out.ext[a] + w0
 	}
 	in := reuse(dst, ext)
-	n := len(in.ext)
-	ist, ost := strides(in.ext), strides(out.ext)
-	diag := 0
-	for _, x := range ost {
-		diag += x
+	if n == 0 {
+		in.lo[0], in.hi[0] = out.lo[0], out.hi[0]+w0
+		return in
 	}
-	parallel(s.workers, len(in.lo), func(wk, lo, hi int) {
+	// Row (p, j) of in, p the indices of the axes before the last row
+	// axis, is the hull of the rows (p - t·1, j - t) of out shifted by t:
+	// for each p and t, a run along the last row axis.
+	olen, ilen := out.ext[n-1], ext[n-1]
+	ost := strides(out.ext)
+	back := 0 // one step back along the diagonal of p, in rows of out
+	for a := 0; a < n-1; a++ {
+		back += ost[a]
+	}
+	pext := ext[:n-1]
+	parallel(s.workers, prod(pext), func(wk, lo, hi int) {
 		sc := &s.scratch[wk]
-		for row := lo; row < hi; row++ {
-			decode(row, in.ext, ist, sc.idx)
-			// orow is the row's index in out's layout (when in range).
-			orow := 0
-			least := math.MaxInt
-			for a := 0; a < n; a++ {
-				orow += sc.idx[a] * ost[a]
-				least = min(least, sc.idx[a])
+		p := sc.idx[:n-1]
+		setIndex(p, pext, lo)
+		for u := lo; u < hi; u++ {
+			if u > lo {
+				next(p, pext)
 			}
-			rlo, rhi := math.MaxInt, math.MinInt
-			for t := 0; t <= w0; t++ {
-				if t > least {
-					break
-				}
-				inRange := true
-				for a := 0; a < n; a++ {
-					if sc.idx[a]-t >= out.ext[a] {
-						inRange = false
-						break
-					}
-				}
-				if inRange {
-					r := orow - t*diag
-					if out.lo[r] <= out.hi[r] {
-						rlo = min(rlo, out.lo[r]+t)
-						rhi = max(rhi, out.hi[r]+t)
-					}
+			ilo, ihi := in.lo[u*ilen:][:ilen], in.hi[u*ilen:][:ilen]
+			for j := range ilo {
+				ilo[j], ihi[j] = emptyLo, emptyHi
+			}
+			t0, t1, base := 0, w0, 0
+			for a, x := range p {
+				t0 = max(t0, x-out.ext[a]+1)
+				t1 = min(t1, x)
+				base += x * ost[a]
+			}
+			for t := t0; t <= t1; t++ {
+				r := base - t*back
+				olo, ohi := out.lo[r:][:olen], out.hi[r:][:olen]
+				dlo, dhi := ilo[t:][:olen], ihi[t:][:olen]
+				for j := range dlo {
+					dlo[j] = min(dlo[j], olo[j]+t)
+					dhi[j] = max(dhi[j], ohi[j]+t)
 				}
 			}
-			if rlo > rhi {
-				rlo, rhi = 1, 0
-			}
-			in.lo[row], in.hi[row] = rlo, rhi
 		}
 	})
 	return in
 }
+
+// dilatePiece is the length of the runs of rows that axisDilate works on
+// at a time.
+const dilatePiece = 4096
 
 // axisDilate returns the spans that the pass along axis ax needs to
 // produce the spans out: the output at j reads the input at j + t along
@@ -475,47 +604,46 @@ func (s *subset) axisDilate(dst, out *spans, ax int) *spans {
 	k := s.k
 	if ax == k-1 {
 		in := reuse(dst, out.ext)
-		for r := range out.lo {
-			in.lo[r], in.hi[r] = out.lo[r], out.hi[r]
-			if out.lo[r] <= out.hi[r] {
-				in.hi[r] += w
+		parallel(s.workers, (len(out.lo)+dilatePiece-1)/dilatePiece, func(_, lo, hi int) {
+			lo, hi = lo*dilatePiece, min(hi*dilatePiece, len(out.lo))
+			copy(in.lo[lo:hi], out.lo[lo:hi])
+			for r := lo; r < hi; r++ {
+				in.hi[r] = out.hi[r] + w
 			}
-		}
+		})
 		return in
 	}
 	ext := append([]int(nil), out.ext...)
 	ext[ax] += w
 	in := reuse(dst, ext)
-	ist, ost := strides(in.ext), strides(out.ext)
-	parallel(s.workers, len(in.lo), func(wk, lo, hi int) {
-		sc := &s.scratch[wk]
-		for row := lo; row < hi; row++ {
-			decode(row, in.ext, ist, sc.idx)
-			base := 0
-			for a := range in.ext {
-				if a != ax {
-					base += sc.idx[a] * ost[a]
-				}
+	// For every index of the axes before ax, the rows of in form a run
+	// of ilen rows, each the hull of the rows t*inner before it in the
+	// run of out, t in [0, w].
+	inner := prod(ext[ax+1:])
+	olen, ilen := out.ext[ax]*inner, ext[ax]*inner
+	pieces := (ilen + dilatePiece - 1) / dilatePiece
+	parallel(s.workers, prod(ext[:ax])*pieces, func(_, lo, hi int) {
+		for u := lo; u < hi; u++ {
+			o, x0 := u/pieces, (u%pieces)*dilatePiece
+			x1 := min(x0+dilatePiece, ilen)
+			ilo, ihi := in.lo[o*ilen:][x0:x1], in.hi[o*ilen:][x0:x1]
+			for j := range ilo {
+				ilo[j], ihi[j] = emptyLo, emptyHi
 			}
-			rlo, rhi := math.MaxInt, math.MinInt
+			olo, ohi := out.lo[o*olen:][:olen], out.hi[o*olen:][:olen]
 			for t := 0; t <= w; t++ {
-				j := sc.idx[ax] - t
-				if j < 0 {
-					break
-				}
-				if j >= out.ext[ax] {
+				sh := t * inner
+				a, b := max(x0, sh), min(x1, sh+olen)
+				if a >= b {
 					continue
 				}
-				r := base + j*ost[ax]
-				if out.lo[r] <= out.hi[r] {
-					rlo = min(rlo, out.lo[r])
-					rhi = max(rhi, out.hi[r])
+				dlo, dhi := ilo[a-x0:b-x0], ihi[a-x0:b-x0]
+				slo, shi := olo[a-sh:b-sh], ohi[a-sh:b-sh]
+				for j := range dlo {
+					dlo[j] = min(dlo[j], slo[j])
+					dhi[j] = max(dhi[j], shi[j])
 				}
 			}
-			if rlo > rhi {
-				rlo, rhi = 1, 0
-			}
-			in.lo[row], in.hi[row] = rlo, rhi
 		}
 	})
 	return in
@@ -528,7 +656,6 @@ func (s *subset) axisDilate(dst, out *spans, ax int) *spans {
 func (s *subset) evalRule(xlo, xext []int, need *spans) []bool {
 	k := s.k
 	last := xext[k-1]
-	rst := strides(need.ext)
 	nonzero := make([][]bool, s.workers)
 	for w := range nonzero {
 		nonzero[w] = make([]bool, k+1)
@@ -537,23 +664,29 @@ func (s *subset) evalRule(xlo, xext []int, need *spans) []bool {
 		sc := &s.scratch[w]
 		r, p := sc.r, sc.p
 		nz := nonzero[w]
+		idx := sc.idx[:k-1]
+		setIndex(idx, need.ext, lo)
 		for row := lo; row < hi; row++ {
-			decode(row, need.ext, rst, sc.idx)
-			for a := 0; a < k-1; a++ {
-				r[s.mem[a+1]] = xlo[a] + sc.idx[a]
+			if row > lo {
+				next(idx, need.ext)
+			}
+			jlo, jhi := need.lo[row], need.hi[row]
+			if jlo > jhi {
+				continue
+			}
+			for a, x := range idx {
+				r[s.mem[a+1]] = xlo[a] + x
 			}
 			base := row * last
-			for j := need.lo[row]; j <= need.hi[row]; j++ {
+			for j := jlo; j <= jhi; j++ {
 				r[s.mem[k]] = xlo[k-1] + j
 				s.rule.Probs(r, p)
 				for i, c := range s.mem {
 					s.x[i][base+j] = p[c]
-					if p[c] != 0 {
-						nz[i] = true
-					}
+					nz[i] = nz[i] || p[c] != 0
 				}
-				for c, pc := range p {
-					if pc != 0 && r[c] == tables.Far {
+				for _, c := range s.far {
+					if p[c] != 0 {
 						s.fault.Store(true)
 					}
 				}
@@ -570,48 +703,61 @@ func (s *subset) evalRule(xlo, xext []int, need *spans) []bool {
 
 // axisPass replaces a by its correlation along axis ax with the noise
 // pmf of member ax+1, over the spans out of the output (whose extents are
-// outExt): out[.., j, ..] = sum_t p[t] in[.., j+t, ..], with t in
-// increasing order. The result stays at the low indices, in place.
-func (s *subset) axisPass(a []float64, st []int, ax int, out *spans, outExt []int) {
+// outExt) within the region g: out[.., j, ..] = sum_t p[t] in[.., j+t, ..],
+// with t in increasing order. The result stays at the low indices, in
+// place.
+func (s *subset) axisPass(a []float64, st []int, ax int, out *spans, g *region, outExt []int) {
 	k := s.k
 	pa := s.p[ax+1]
 	if ax == k-1 {
 		parallel(s.workers, len(out.lo), func(wk, lo, hi int) {
-			sc := &s.scratch[wk]
+			idx := s.scratch[wk].idx[:k-1]
+			setIndex(idx, out.ext, lo)
 			for row := lo; row < hi; row++ {
-				base := decode(row, out.ext, st[:k-1], sc.idx)
-				correlate(a[base:], pa, out.lo[row], out.hi[row])
+				if row > lo {
+					next(idx, out.ext)
+				}
+				if out.lo[row] > out.hi[row] {
+					continue
+				}
+				if jlo, jhi := g.clip(idx, out.lo[row], out.hi[row]); jlo <= jhi {
+					correlate(a[dot(idx, st):], pa, jlo, jhi)
+				}
 			}
 		})
 		return
 	}
 	// Lines along ax for every index of the other axes but the last, and
 	// chunks of the last axis.
-	var oext, ost, orst []int
-	rst := strides(out.ext)
+	var oext []int
 	for b := 0; b < k-1; b++ {
 		if b != ax {
 			oext = append(oext, out.ext[b])
-			ost = append(ost, st[b])
-			orst = append(orst, rst[b])
 		}
 	}
+	rst := strides(out.ext)
 	lastLen := outExt[k-1]
 	nchunk := (lastLen + chunk - 1) / chunk
 	sa, ra := st[ax], rst[ax]
 	parallel(s.workers, prod(oext)*nchunk, func(wk, lo, hi int) {
 		sc := &s.scratch[wk]
+		idx, oidx := sc.idx[:k-1], sc.aux[:len(oext)]
 		for u := lo; u < hi; u++ {
-			base := decode(u/nchunk, oext, ost, sc.idx[:len(oext)])
-			rbase := 0
-			for b := range oext {
-				rbase += sc.idx[b] * orst[b]
-			}
+			setIndex(oidx, oext, u/nchunk)
+			copy(idx[:ax], oidx[:ax])
+			copy(idx[ax+1:], oidx[ax:])
+			idx[ax] = 0
+			base, rbase := dot(idx, st), dot(idx, rst)
 			e0 := (u % nchunk) * chunk
 			e1 := min(e0+chunk, lastLen)
 			for j := 0; j < outExt[ax]; j++ {
 				r := rbase + j*ra
-				a0, a1 := max(out.lo[r], e0), min(out.hi[r]+1, e1)
+				if out.lo[r] > out.hi[r] {
+					continue
+				}
+				idx[ax] = j
+				jlo, jhi := g.clip(idx, out.lo[r], out.hi[r])
+				a0, a1 := max(jlo, e0), min(jhi+1, e1)
 				if a0 >= a1 {
 					continue
 				}
@@ -678,10 +824,11 @@ func rows(tmp, src []float64, stride int, p []float64) {
 }
 
 // diagPass adds to rs, at every configuration u of the tile (the spans
-// out), (max u - u_i) P_i(u), where P_i(u) = sum_t p_0[t] Y_i(u - (lo_0+t)·1)
-// and a holds Y_i with its lowest corner at u_lo - hi_0·1: the pass along
-// the diagonal for the noise of member 0.
-func (s *subset) diagPass(a []float64, st, ulo, ext []int, i int, rs []float64, out *spans) {
+// out) within the region g, (max u - u_i) P_i(u), where
+// P_i(u) = sum_t p_0[t] Y_i(u - (lo_0+t)·1) and a holds Y_i with its lowest
+// corner at u_lo - hi_0·1: the pass along the diagonal for the noise of
+// member 0.
+func (s *subset) diagPass(a []float64, st, ulo, ext []int, i int, rs []float64, out *spans, g *region) {
 	k := s.k
 	w0 := s.w[0]
 	// Reversed so that t runs over the offsets of a in increasing order:
@@ -698,20 +845,30 @@ func (s *subset) diagPass(a []float64, st, ulo, ext []int, i int, rs []float64, 
 	nchunk := (lastLen + chunk - 1) / chunk
 	parallel(s.workers, len(out.lo)*nchunk, func(wk, lo, hi int) {
 		sc := &s.scratch[wk]
+		idx := sc.idx[:k-1]
+		row := lo / nchunk
+		setIndex(idx, out.ext, row)
 		for u := lo; u < hi; u++ {
-			row := u / nchunk
+			if r := u / nchunk; r != row {
+				row = r
+				next(idx, out.ext)
+			}
+			if out.lo[row] > out.hi[row] {
+				continue
+			}
+			jlo, jhi := g.clip(idx, out.lo[row], out.hi[row])
 			e0 := (u % nchunk) * chunk
-			a0, a1 := max(out.lo[row], e0), min(out.hi[row]+1, e0+chunk, lastLen)
+			a0, a1 := max(jlo, e0), min(jhi+1, e0+chunk, lastLen)
 			if a0 >= a1 {
 				continue
 			}
-			baseA := decode(row, out.ext, st[:k-1], sc.idx[:k-1])
+			baseA := dot(idx, st[:k-1])
 			baseR := row * lastLen
 			// The weight max u - u_i: the part from the axes before the
 			// last is fixed along the row.
 			mo, ui := 0, 0
-			for b := 0; b < k-1; b++ {
-				ub := ulo[b] + sc.idx[b]
+			for b, x := range idx {
+				ub := ulo[b] + x
 				mo = max(mo, ub)
 				if b+1 == i {
 					ui = ub
@@ -737,25 +894,28 @@ func (s *subset) diagPass(a []float64, st, ulo, ext []int, i int, rs []float64, 
 // the spans cfg.
 func (s *subset) report(ulo, ext []int, cfg *spans, v []int, fn func(v []int, regret float64)) {
 	k := s.k
-	idx := make([]int, k)
-	u := make([]int, k)
-	rst := strides(cfg.ext)
+	idx := make([]int, k-1)
 	last := ext[k-1]
 	for row := range cfg.lo {
-		decode(row, cfg.ext, rst, idx)
-		for a := 0; a < k-1; a++ {
-			u[a] = ulo[a] + idx[a]
+		if row > 0 {
+			next(idx, cfg.ext)
 		}
-		for j := cfg.lo[row]; j <= cfg.hi[row]; j++ {
-			u[k-1] = ulo[k-1] + j
-			lowest := 0
-			for _, x := range u {
-				lowest = min(lowest, x)
-			}
+		jlo, jhi := cfg.lo[row], cfg.hi[row]
+		if jlo > jhi {
+			continue
+		}
+		fixed := 0 // the lowest of u_0 = 0 and the differences fixed along the row
+		for a, x := range idx {
+			fixed = min(fixed, ulo[a]+x)
+		}
+		for j := jlo; j <= jhi; j++ {
+			ul := ulo[k-1] + j
+			lowest := min(fixed, ul)
 			v[s.mem[0]] = -lowest
-			for a := 0; a < k; a++ {
-				v[s.mem[a+1]] = u[a] - lowest
+			for a, x := range idx {
+				v[s.mem[a+1]] = ulo[a] + x - lowest
 			}
+			v[s.mem[k]] = ul - lowest
 			fn(v, s.r[row*last+j])
 		}
 	}
