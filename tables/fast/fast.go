@@ -100,6 +100,11 @@ func check(l *tables.Layout, rule tables.Rule, d int) error {
 // channels of q by a common amount, the others staying at tables.Far, must
 // not change its probabilities. Every rule of package tables is.
 func (e Evaluator) Regrets(l *tables.Layout, rule tables.Rule, q tables.Set, d int, fn func(v []int, regret float64)) error {
+	return e.regrets(l, rule, q, d, new(work), fn)
+}
+
+// regrets is Regrets with the work arrays of w.
+func (e Evaluator) regrets(l *tables.Layout, rule tables.Rule, q tables.Set, d int, w *work, fn func(v []int, regret float64)) error {
 	if err := check(l, rule, d); err != nil {
 		return err
 	}
@@ -110,6 +115,7 @@ func (e Evaluator) Regrets(l *tables.Layout, rule tables.Rule, q tables.Set, d i
 	if err != nil {
 		return err
 	}
+	s.work = w
 	return s.run(fn)
 }
 
@@ -126,10 +132,11 @@ func (e Evaluator) WorstCase(l *tables.Layout, rule tables.Rule, d int) (tables.
 	}
 	var w tables.Worst
 	found := false
+	var arrays work
 	for _, q := range tables.Subsets(l.N()) {
 		mem := q.Members()
 		same := false // whether w holds a configuration of q
-		err := e.Regrets(l, rule, q, d, func(v []int, reg float64) {
+		err := e.regrets(l, rule, q, d, &arrays, func(v []int, reg float64) {
 			w.Configurations++
 			if !found || reg > w.Regret || (reg == w.Regret && same && earlier(v, w.Values, mem)) {
 				found, same = true, true
@@ -180,8 +187,9 @@ func (e Evaluator) Candidates(l *tables.Layout, rule tables.Rule, d int, tol flo
 		list = list[:k]
 	}
 	subsets := tables.Subsets(l.N())
+	var arrays work
 	for si, q := range subsets {
-		err := e.Regrets(l, rule, q, d, func(v []int, reg float64) {
+		err := e.regrets(l, rule, q, d, &arrays, func(v []int, reg float64) {
 			if reg < top-tol {
 				return
 			}

@@ -290,7 +290,9 @@ func TestBitForBit(t *testing.T) {
 						box := s.bytes()
 						e.MaxBytes = int64(all - box + box/3)
 					}
-					tiles := 0
+					tiles, total := 0, 0
+					top := math.Inf(-1)
+					want := map[string]float64{}
 					for _, q := range tables.Subsets(c.n) {
 						s, err := newSubset(l, rc.rule, q, c.d, e.workers(), e.maxBytes())
 						if err != nil {
@@ -298,6 +300,11 @@ func TestBitForBit(t *testing.T) {
 						}
 						tiles = max(tiles, prodTiles(s))
 						vs, regs := refReports(t, e, l, rc.rule, q, c.d)
+						for j, v := range vs {
+							want[fmt.Sprint(v)] = regs[j]
+							top = max(top, regs[j])
+						}
+						total += len(vs)
 						n := 0
 						err = e.Regrets(l, rc.rule, q, c.d, func(v []int, reg float64) {
 							if n < len(vs) && (fmt.Sprint(v) != fmt.Sprint(vs[n]) || math.Float64bits(reg) != math.Float64bits(regs[n])) {
@@ -314,6 +321,15 @@ func TestBitForBit(t *testing.T) {
 					}
 					if c.split && tiles < 3 {
 						t.Errorf("the budget splits the largest box into %d tiles, want several", tiles)
+					}
+					// WorstCase keeps its arrays from one subset to the
+					// next.
+					w, err := e.WorstCase(l, rc.rule, c.d)
+					if err != nil {
+						t.Fatal(err)
+					}
+					if w.Regret != top || want[fmt.Sprint(w.Values)] != top || w.Configurations != total {
+						t.Errorf("worst case %.17g at %v of %d configurations, want %.17g of %d", w.Regret, w.Values, w.Configurations, top, total)
 					}
 				})
 			}

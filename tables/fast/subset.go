@@ -41,6 +41,56 @@ type subset struct {
 	far     []int       // the channels outside the subset
 	scratch []scratch
 	fault   atomic.Bool // the rule gave probability to a channel outside the subset
+	work    *work       // where x, r and need come from; nil for arrays of its own
+	budget  int64       // the memory budget
+}
+
+// work holds the work arrays of an evaluation, kept from one subset to
+// the next so that each is allocated, and its memory first touched, once.
+type work struct {
+	x    [][]float64
+	r    []float64
+	need []*spans
+}
+
+// take sets s.x, s.r and s.need to arrays of w of at least xsize, rsize
+// and k+2 entries, allocating those that are too short. When the arrays
+// kept and the longer ones would take more than s's budget, w lets go of
+// its arrays first.
+func (w *work) take(s *subset, xsize, rsize int) {
+	m := s.k + 1
+	total := 8 * float64(max(cap(w.r), rsize))
+	for i := 0; i < max(m, len(w.x)); i++ {
+		n := 0
+		if i < len(w.x) {
+			n = cap(w.x[i])
+		}
+		if i < m {
+			n = max(n, xsize)
+		}
+		total += 8 * float64(n)
+	}
+	for _, sp := range w.need {
+		total += 16 * float64(cap(sp.lo))
+	}
+	if total > float64(s.budget) {
+		*w = work{}
+	}
+	for len(w.x) < m {
+		w.x = append(w.x, nil)
+	}
+	for i := range m {
+		if cap(w.x[i]) < xsize {
+			w.x[i] = make([]float64, xsize)
+		}
+	}
+	if cap(w.r) < rsize {
+		w.r = make([]float64, rsize)
+	}
+	for len(w.need) < s.k+2 {
+		w.need = append(w.need, new(spans))
+	}
+	s.x, s.r, s.need = w.x[:m], w.r[:rsize], w.need[:s.k+2]
 }
 
 // scratch is one goroutine's work space.
@@ -49,6 +99,7 @@ type scratch struct {
 	p        []float64
 	tmp      []float64
 	idx, aux []int
+	x        [][]float64 // a row of each member's X
 }
 
 func newSubset(l *tables.Layout, rule tables.Rule, q tables.Set, d, workers int, maxBytes int64) (*subset, error) {
@@ -58,7 +109,7 @@ func newSubset(l *tables.Layout, rule tables.Rule, q tables.Set, d, workers int,
 	if d > maxSpan/k {
 		return nil, fmt.Errorf("fast: gap bound %d is too large for %d channels", d, m)
 	}
-	s := &subset{l: l, rule: rule, mem: mem, k: k, d: d, span: k * d, workers: workers}
+	s := &subset{l: l, rule: rule, mem: mem, k: k, d: d, span: k * d, workers: workers, budget: maxBytes}
 	for _, c := range mem {
 		s.lo = append(s.lo, l.Lo[c])
 		s.w = append(s.w, l.Hi[c]-l.Lo[c])
@@ -99,6 +150,7 @@ func newSubset(l *tables.Layout, rule tables.Rule, q tables.Set, d, workers int,
 		sc.tmp = make([]float64, chunk)
 		sc.idx = make([]int, k)
 		sc.aux = make([]int, k)
+		sc.x = make([][]float64, m)
 	}
 	for c := 0; c < n; c++ {
 		if !q.Has(c) {
@@ -139,12 +191,10 @@ func (s *subset) run(fn func(v []int, regret float64)) error {
 		xsize *= s.xext(s.tile, a)
 		rsize *= t
 	}
-	s.x = make([][]float64, k+1)
-	for i := range s.x {
-		s.x[i] = make([]float64, xsize)
+	if s.work == nil {
+		s.work = new(work)
 	}
-	s.r = make([]float64, rsize)
-	s.need = make([]*spans, k+2)
+	s.work.take(s, xsize, rsize)
 	t := make([]int, k)
 	ulo := make([]int, k)
 	ext := make([]int, k)
@@ -656,14 +706,11 @@ func (s *subset) axisDilate(dst, out *spans, ax int) *spans {
 func (s *subset) evalRule(xlo, xext []int, need *spans) []bool {
 	k := s.k
 	last := xext[k-1]
-	nonzero := make([][]bool, s.workers)
-	for w := range nonzero {
-		nonzero[w] = make([]bool, k+1)
-	}
+	nonzero := make([]uint32, s.workers) // bit i for member i
 	parallel(s.workers, len(need.lo), func(w, lo, hi int) {
 		sc := &s.scratch[w]
-		r, p := sc.r, sc.p
-		nz := nonzero[w]
+		r, p, xr := sc.r, sc.p, sc.x
+		var nz uint32
 		idx := sc.idx[:k-1]
 		setIndex(idx, need.ext, lo)
 		for row := lo; row < hi; row++ {
@@ -678,12 +725,18 @@ func (s *subset) evalRule(xlo, xext []int, need *spans) []bool {
 				r[s.mem[a+1]] = xlo[a] + x
 			}
 			base := row * last
+			for i := range xr {
+				xr[i] = s.x[i][base+jlo : base+jhi+1]
+			}
 			for j := jlo; j <= jhi; j++ {
 				r[s.mem[k]] = xlo[k-1] + j
 				s.rule.Probs(r, p)
 				for i, c := range s.mem {
-					s.x[i][base+j] = p[c]
-					nz[i] = nz[i] || p[c] != 0
+					v := p[c]
+					xr[i][j-jlo] = v
+					if v != 0 {
+						nz |= 1 << uint(i)
+					}
 				}
 				for _, c := range s.far {
 					if p[c] != 0 {
@@ -692,13 +745,15 @@ func (s *subset) evalRule(xlo, xext []int, need *spans) []bool {
 				}
 			}
 		}
+		nonzero[w] |= nz
 	})
-	for w := 1; w < s.workers; w++ {
-		for i, b := range nonzero[w] {
-			nonzero[0][i] = nonzero[0][i] || b
+	out := make([]bool, k+1)
+	for i := range out {
+		for _, nz := range nonzero {
+			out[i] = out[i] || nz&(1<<uint(i)) != 0
 		}
 	}
-	return nonzero[0]
+	return out
 }
 
 // axisPass replaces a by its correlation along axis ax with the noise
@@ -761,9 +816,9 @@ func (s *subset) axisPass(a []float64, st []int, ax int, out *spans, g *region, 
 				if a0 >= a1 {
 					continue
 				}
-				tmp := sc.tmp[:a1-a0]
-				rows(tmp, a[base+j*sa+a0:], sa, pa)
-				copy(a[base+j*sa+a0:], tmp)
+				// In place: row j is read first, for t = 0.
+				line := a[base+j*sa+a0:]
+				rows(line[:a1-a0], line, sa, pa)
 			}
 		}
 	})
@@ -795,7 +850,8 @@ func correlate(line []float64, p []float64, lo, hi int) {
 }
 
 // rows sets tmp[e] = sum_t p[t] src[t*stride+e] (t increasing), taking
-// four terms of p at a time.
+// four terms of p at a time. tmp may be src[:len(tmp)]: each of its
+// entries is read before it is written.
 func rows(tmp, src []float64, stride int, p []float64) {
 	n := len(tmp)
 	s0 := src[:n]
