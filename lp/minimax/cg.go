@@ -223,59 +223,79 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 		f.addRegretRows(vs, pending)
 	}
 
+	// keep inserts configuration v with regret reg into list, which holds
+	// at most size configurations, most violated first (of equal regrets
+	// the earlier enumerated). The list stays spread out: of
+	// configurations within the radius of each other only the most
+	// violated stays, so that one round reaches every region where the
+	// rule is bad, not just the neighbours of the worst configuration.
+	keep := func(list []scored, size int, v []int, reg float64) []scored {
+		if len(list) == size && reg <= list[size-1].reg {
+			return list
+		}
+		if radius > 0 {
+			for i := range list {
+				if near(list[i].v, v, radius) {
+					if reg <= list[i].reg {
+						return list
+					}
+					list = append(list[:i], list[i+1:]...)
+					break
+				}
+			}
+		}
+		if len(list) == size {
+			list = list[:size-1]
+		}
+		k := sort.Search(len(list), func(i int) bool { return list[i].reg < reg })
+		list = append(list, scored{})
+		copy(list[k+1:], list[k:])
+		list[k] = scored{append([]int(nil), v...), reg}
+		return list
+	}
+
 	// worst collects, per subset, the configurations of rule with the
-	// largest regrets above threshold, most violated first.
+	// largest regrets above threshold, most violated first, and, when
+	// prev is not nil, those where the regrets prev (of the best rule so
+	// far, in the evaluator's order) are largest above it: the places
+	// that hold the best rule's worst case up, which the round's rule may
+	// not share.
 	// regs receives the regret of every configuration, in the
 	// evaluator's order (the same in every round).
 	var regs []float64
-	worst := func(rule tables.Rule, threshold float64, radius int, sizeOf func(tables.Set) int) ([]scored, float64, int, error) {
+	worst := func(rule tables.Rule, threshold float64, prev []float64, sizeOf func(tables.Set) int) ([]scored, float64, int, error) {
 		var out []scored
 		regs = regs[:0]
 		top := 0.0
 		count := 0
 		for _, q := range tables.Subsets(n) {
-			// list holds the batch most violated so far, most violated
-			// first; of equal regrets the earlier enumerated.
 			size := sizeOf(q)
 			list := make([]scored, 0, size)
+			var also []scored // by prev
 			err := opt.Evaluator.Regrets(l, rule, q, l.D, func(v []int, reg float64) {
+				at := len(regs)
 				regs = append(regs, reg)
 				top = math.Max(top, reg)
-				if reg <= threshold || inSet[keyOf(canon(v))] {
+				above := prev != nil && prev[at] > threshold
+				if reg <= threshold && !above {
 					return
 				}
-				count++
-				if len(list) == size && reg <= list[size-1].reg {
+				if inSet[keyOf(canon(v))] {
 					return
 				}
-				// Keep the list spread out: of configurations within
-				// the radius of each other only the most violated
-				// stays, so that one round reaches every region where
-				// the rule is bad, not just the neighbours of the
-				// worst configuration.
-				if radius > 0 {
-					for i := range list {
-						if near(list[i].v, v, radius) {
-							if reg <= list[i].reg {
-								return
-							}
-							list = append(list[:i], list[i+1:]...)
-							break
-						}
-					}
+				if reg > threshold {
+					count++
+					list = keep(list, size, v, reg)
 				}
-				if len(list) == size {
-					list = list[:size-1]
+				if above {
+					also = keep(also, max(1, size/2), v, prev[at])
 				}
-				k := sort.Search(len(list), func(i int) bool { return list[i].reg < reg })
-				list = append(list, scored{})
-				copy(list[k+1:], list[k:])
-				list[k] = scored{append([]int(nil), v...), reg}
 			})
 			if err != nil {
 				return nil, 0, 0, err
 			}
 			out = append(out, list...)
+			out = append(out, also...)
 		}
 		return out, top, count, nil
 	}
@@ -285,7 +305,7 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 	// has about two per point of the subset's difference pmf), between 8
 	// and the batch: rows of fine-step normal noise reach tens of
 	// thousands of cells each.
-	init, initTop, _, err := worst(f.Tables, -1, radius, func(q tables.Set) int {
+	init, initTop, _, err := worst(f.Tables, -1, nil, func(q tables.Set) int {
 		return min(batch, max(8, 500000/max(f.differences(q).Len(), 1)))
 	})
 	if err != nil {
@@ -365,7 +385,16 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 		}
 		f.Apply(sol.X)
 		threshold := sol.Objective*(1+tol) + 1e-12
-		viol, top, count, err := worst(f.Tables, threshold, radius, func(tables.Set) int { return batch })
+		// Add the configurations where this round's rule is most
+		// violated and, half as many, where the best rule so far is:
+		// the round's rule is often bad where the best rule is not
+		// and good where it is not, and the best rule's worst case
+		// is the upper bound. (Four channels with 15-point pmfs: a
+		// certified gap of 0.065 steps after five rounds instead of
+		// 0.14, the LP value rising every round instead of stalling
+		// after the third; three channels with 15-point pmfs: 4
+		// rounds instead of 14.)
+		viol, top, count, err := worst(f.Tables, threshold, best.regs, func(tables.Set) int { return batch })
 		if err != nil {
 			return nil, err
 		}
@@ -373,7 +402,7 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 		if len(regs) != len(best.regs) {
 			return nil, fmt.Errorf("constraint generation: the evaluator reported %d configurations, then %d", len(best.regs), len(regs))
 		}
-		if len(viol) == 0 {
+		if count == 0 {
 			// The round's rule is optimal: no configuration outside the
 			// working set is above the LP value, none inside it by more
 			// than the LP's tolerance.
@@ -388,7 +417,7 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 			opt.Progress(Progress{Round: round, Configs: f.NumConfigs(), LPValue: sol.Objective,
 				WorstCase: top, Best: best.worst, Violations: count, Elapsed: time.Since(start)})
 		}
-		if len(viol) == 0 || best.worst <= threshold {
+		if count == 0 || best.worst <= threshold {
 			return finish(true)
 		}
 		if round >= maxRounds || (!opt.Deadline.IsZero() && time.Now().After(opt.Deadline)) {
