@@ -13,6 +13,10 @@ import (
 // work on at a time.
 const chunk = 256
 
+// passBlock is the number of rows next to each other that a pass along
+// an axis other than the last works on at a time.
+const passBlock = 8
+
 // maxSpan bounds k*d, the largest value difference of a configuration, so
 // that reading differences stay far above tables.Far/2 and box sizes fit
 // in an int.
@@ -782,43 +786,47 @@ func (s *subset) axisPass(a []float64, st []int, ax int, out *spans, g *region, 
 		})
 		return
 	}
-	// Lines along ax for every index of the other axes but the last, and
-	// chunks of the last axis.
-	var oext []int
-	for b := 0; b < k-1; b++ {
-		if b != ax {
-			oext = append(oext, out.ext[b])
-		}
-	}
-	rst := strides(out.ext)
+	// The rows of out are (o, j, r): o the indices of the axes before
+	// ax, j the index along ax and r those of the axes after ax. A unit is
+	// a block of r for one o, and a chunk of the last axis; it runs j
+	// upwards, so that a row is replaced after the rows before it along ax
+	// have read it, and over the block within each j, so that the spans
+	// and the rows of a are read in order.
+	outer, jn, inner := prod(out.ext[:ax]), out.ext[ax], prod(out.ext[ax+1:])
+	blocks := (inner + passBlock - 1) / passBlock
 	lastLen := outExt[k-1]
 	nchunk := (lastLen + chunk - 1) / chunk
-	sa, ra := st[ax], rst[ax]
-	parallel(s.workers, prod(oext)*nchunk, func(wk, lo, hi int) {
+	sa := st[ax]
+	parallel(s.workers, outer*blocks*nchunk, func(wk, lo, hi int) {
 		sc := &s.scratch[wk]
-		idx, oidx := sc.idx[:k-1], sc.aux[:len(oext)]
+		idx, start := sc.idx[:k-1], sc.aux[:k-1]
 		for u := lo; u < hi; u++ {
-			setIndex(oidx, oext, u/nchunk)
-			copy(idx[:ax], oidx[:ax])
-			copy(idx[ax+1:], oidx[ax:])
-			idx[ax] = 0
-			base, rbase := dot(idx, st), dot(idx, rst)
 			e0 := (u % nchunk) * chunk
 			e1 := min(e0+chunk, lastLen)
-			for j := 0; j < outExt[ax]; j++ {
-				r := rbase + j*ra
-				if out.lo[r] > out.hi[r] {
-					continue
-				}
+			o, r0 := u/nchunk/blocks, (u/nchunk%blocks)*passBlock
+			r1 := min(r0+passBlock, inner)
+			setIndex(start[:ax], out.ext[:ax], o)
+			setIndex(start[ax+1:], out.ext[ax+1:], r0)
+			for j := 0; j < jn; j++ {
+				copy(idx, start)
 				idx[ax] = j
-				jlo, jhi := g.clip(idx, out.lo[r], out.hi[r])
-				a0, a1 := max(jlo, e0), min(jhi+1, e1)
-				if a0 >= a1 {
-					continue
+				row := (o*jn+j)*inner + r0
+				for r := r0; r < r1; r, row = r+1, row+1 {
+					if r > r0 {
+						next(idx[ax+1:], out.ext[ax+1:])
+					}
+					if out.lo[row] > out.hi[row] {
+						continue
+					}
+					jlo, jhi := g.clip(idx, out.lo[row], out.hi[row])
+					a0, a1 := max(jlo, e0), min(jhi+1, e1)
+					if a0 >= a1 {
+						continue
+					}
+					// In place: row j is read first, for t = 0.
+					line := a[dot(idx, st)+a0:]
+					rows(line[:a1-a0], line, sa, pa)
 				}
-				// In place: row j is read first, for t = 0.
-				line := a[base+j*sa+a0:]
-				rows(line[:a1-a0], line, sa, pa)
 			}
 		}
 	})
