@@ -104,7 +104,6 @@ type scratch struct {
 	tmp      []float64
 	idx, aux []int
 	x        [][]float64 // a row of each member's X
-	acc      []float64   // the regrets along a chunk of a row
 }
 
 func newSubset(l *tables.Layout, rule tables.Rule, q tables.Set, d, workers int, maxBytes int64) (*subset, error) {
@@ -153,7 +152,6 @@ func newSubset(l *tables.Layout, rule tables.Rule, q tables.Set, d, workers int,
 		sc.r[mem[0]] = 0
 		sc.p = make([]float64, n)
 		sc.tmp = make([]float64, chunk)
-		sc.acc = make([]float64, chunk)
 		sc.idx = make([]int, k)
 		sc.aux = make([]int, k)
 		sc.x = make([][]float64, m)
@@ -386,10 +384,9 @@ func (s *subset) regrets(ulo, ext []int) (*spans, error) {
 	if s.fault.Load() {
 		return nil, fmt.Errorf("fast: the rule gives probability to a channel outside subset %v", s.mem)
 	}
-	// ys[i] is Y_i, and g[i] member i's regions, for the members with
-	// probabilities that are not all zero.
-	ys := make([][]float64, k+1)
-	g := make([][]region, k+1)
+	rs := s.r[:prod(ext)]
+	s.clearSpans(rs, ext[k-1], need[k+1])
+	g := make([]region, k+2)
 	for i := range s.mem {
 		if !nonzero[i] {
 			continue
@@ -397,18 +394,28 @@ func (s *subset) regrets(ulo, ext []int) (*spans, error) {
 		// Member i adds nothing where it holds the highest value: each
 		// stage computes only where that is not the case for some
 		// configuration that reads it.
-		g[i] = make([]region, k+2)
 		for st := 1; st <= k+1; st++ {
-			s.region(&g[i][st], i, st, ulo)
+			s.region(&g[st], i, st, ulo)
 		}
 		a := s.x[i][:size]
 		for ax := 0; ax < k; ax++ {
-			s.axisPass(a, xst, ax, need[ax+1], &g[i][ax+1], s.stageExt(ext, ax+1))
+			s.axisPass(a, xst, ax, need[ax+1], &g[ax+1], s.stageExt(ext, ax+1))
 		}
-		ys[i] = a
+		s.diagPass(a, xst, ulo, ext, i, rs, need[k+1], &g[k+1])
 	}
-	s.diagPass(ys, g, xst, ulo, ext, need[k+1])
 	return need[k+1], nil
+}
+
+// clearSpans sets to zero the entries of rs (rows of length last) in the
+// spans cfg.
+func (s *subset) clearSpans(rs []float64, last int, cfg *spans) {
+	parallel(s.workers, len(cfg.lo), func(_, lo, hi int) {
+		for row := lo; row < hi; row++ {
+			if a, b := cfg.lo[row], cfg.hi[row]; a <= b {
+				clear(rs[row*last+a : row*last+b+1])
+			}
+		}
+	})
 }
 
 // region is, for one member and one stage of the computation, the set
@@ -880,18 +887,16 @@ func rows(tmp, src []float64, stride int, p []float64) {
 	}
 }
 
-// diagPass sets s.r, at every configuration u of the tile (the spans
-// out), to the sum over the members i in order of (max u - u_i) P_i(u),
-// where P_i(u) = sum_t p_0[t] Y_i(u - (lo_0+t)·1) and ys[i] holds Y_i with
-// its lowest corner at u_lo - hi_0·1 (nil for a member whose
-// probabilities are all zero): the pass along the diagonal for the noise
-// of member 0. Member i's terms are computed only within its region at
-// stage k+1, g[i][k+1], outside which its weight is zero.
-func (s *subset) diagPass(ys [][]float64, g [][]region, st, ulo, ext []int, out *spans) {
+// diagPass adds to rs, at every configuration u of the tile (the spans
+// out) within the region g, (max u - u_i) P_i(u), where
+// P_i(u) = sum_t p_0[t] Y_i(u - (lo_0+t)·1) and a holds Y_i with its lowest
+// corner at u_lo - hi_0·1: the pass along the diagonal for the noise of
+// member 0.
+func (s *subset) diagPass(a []float64, st, ulo, ext []int, i int, rs []float64, out *spans, g *region) {
 	k := s.k
 	w0 := s.w[0]
-	// Reversed so that t runs over the offsets of Y in increasing order:
-	// P(u) = sum_t q[t] Y[u + t·1] with q[t] = p_0[w_0 - t].
+	// Reversed so that t runs over the offsets of a in increasing order:
+	// P(u) = sum_t q[t] a[u + t·1] with q[t] = p_0[w_0 - t].
 	q := make([]float64, w0+1)
 	for t := range q {
 		q[t] = s.p[0][w0-t]
@@ -905,57 +910,46 @@ func (s *subset) diagPass(ys [][]float64, g [][]region, st, ulo, ext []int, out 
 	parallel(s.workers, len(out.lo)*nchunk, func(wk, lo, hi int) {
 		sc := &s.scratch[wk]
 		idx := sc.idx[:k-1]
-		row, c := lo/nchunk, lo%nchunk
+		row := lo / nchunk
 		setIndex(idx, out.ext, row)
 		for u := lo; u < hi; u++ {
-			if u > lo {
-				if c++; c == nchunk {
-					c = 0
-					row++
-					next(idx, out.ext)
-				}
+			if r := u / nchunk; r != row {
+				row = r
+				next(idx, out.ext)
 			}
-			e0 := c * chunk
-			a0, a1 := max(out.lo[row], e0), min(out.hi[row]+1, e0+chunk, lastLen)
+			if out.lo[row] > out.hi[row] {
+				continue
+			}
+			jlo, jhi := g.clip(idx, out.lo[row], out.hi[row])
+			e0 := (u % nchunk) * chunk
+			a0, a1 := max(jlo, e0), min(jhi+1, e0+chunk, lastLen)
 			if a0 >= a1 {
 				continue
 			}
-			baseA := dot(idx, st)
-			// The regrets start at zero, and each member adds its terms.
-			acc := sc.acc[:a1-a0]
-			clear(acc)
-			// mo is the highest of u_0 = 0 and the differences fixed
-			// along the row.
-			mo := 0
+			baseA := dot(idx, st[:k-1])
+			baseR := row * lastLen
+			// The weight max u - u_i: the part from the axes before the
+			// last is fixed along the row.
+			mo, ui := 0, 0
 			for b, x := range idx {
-				mo = max(mo, ulo[b]+x)
-			}
-			for i, y := range ys {
-				if y == nil {
-					continue
-				}
-				jlo, jhi := g[i][k+1].clip(idx, a0, a1-1)
-				if jlo > jhi {
-					continue
-				}
-				ui := 0
-				if i > 0 && i < k {
-					ui = ulo[i-1] + idx[i-1]
-				}
-				tmp := sc.tmp[:jhi-jlo+1]
-				rows(tmp, y[baseA+jlo:], dsum, q)
-				dst := acc[jlo-a0:][:len(tmp)]
-				for e := range tmp {
-					ul := ulo[k-1] + jlo + e
-					if i == k {
-						ui = ul
-					}
-					if wt := max(mo, ul) - ui; wt != 0 {
-						dst[e] += float64(wt) * tmp[e]
-					}
+				ub := ulo[b] + x
+				mo = max(mo, ub)
+				if b+1 == i {
+					ui = ub
 				}
 			}
-			copy(s.r[row*lastLen+a0:], acc)
+			tmp := sc.tmp[:a1-a0]
+			rows(tmp, a[baseA+a0:], dsum, q)
+			dst := rs[baseR+a0:][:a1-a0]
+			for e := range tmp {
+				ul := ulo[k-1] + a0 + e
+				if i == k {
+					ui = ul
+				}
+				if wt := max(mo, ul) - ui; wt != 0 {
+					dst[e] += float64(wt) * tmp[e]
+				}
+			}
 		}
 	})
 }
