@@ -215,7 +215,9 @@ func (s *subset) run(fn func(v []int, regret float64)) error {
 		if err != nil {
 			return err
 		}
-		s.report(ulo, ext, cfg, v, fn)
+		if cfg != nil {
+			s.report(ulo, ext, cfg, v, fn)
+		}
 		if !next(t, ntiles) {
 			return nil
 		}
@@ -356,7 +358,8 @@ func (s *subset) stageExt(ext []int, st int) []int {
 
 // regrets fills s.r with the regret at every configuration of the tile
 // with lowest corner ulo and extents ext (other entries of s.r are
-// unspecified) and returns the spans of the configurations.
+// unspecified) and returns the spans of the configurations, nil if the
+// tile holds none.
 func (s *subset) regrets(ulo, ext []int) (*spans, error) {
 	k := s.k
 	xext := s.stageExt(ext, 0)
@@ -372,7 +375,11 @@ func (s *subset) regrets(ulo, ext []int) (*spans, error) {
 	// Work backwards from the configurations to the values each stage
 	// needs.
 	need := s.need
-	need[k+1] = s.validSpans(need[k+1], ulo, ext)
+	var found bool
+	need[k+1], found = s.validSpans(need[k+1], ulo, ext)
+	if !found {
+		return nil, nil
+	}
 	need[k] = s.diagDilate(need[k], need[k+1])
 	for ax := k - 1; ax >= 0; ax-- {
 		need[ax] = s.axisDilate(need[ax], need[ax+1], ax)
@@ -562,11 +569,12 @@ func (s *subset) lastRange(u []int) (lo, hi int) {
 }
 
 // validSpans returns, for every row of the tile, the configurations along
-// the last axis: an interval, by lastRange.
-func (s *subset) validSpans(dst *spans, ulo, ext []int) *spans {
+// the last axis: an interval, by lastRange; and whether there are any.
+func (s *subset) validSpans(dst *spans, ulo, ext []int) (*spans, bool) {
 	k := s.k
 	out := reuse(dst, ext[:k-1])
 	last := ext[k-1]
+	var found atomic.Bool
 	parallel(s.workers, len(out.lo), func(wk, lo, hi int) {
 		sc := &s.scratch[wk]
 		idx, u := sc.idx[:k-1], sc.aux[:k-1]
@@ -582,11 +590,13 @@ func (s *subset) validSpans(dst *spans, ulo, ext []int) *spans {
 			l, h = max(l-ulo[k-1], 0), min(h-ulo[k-1], last-1)
 			if l > h {
 				l, h = emptyLo, emptyHi
+			} else if !found.Load() {
+				found.Store(true)
 			}
 			out.lo[row], out.hi[row] = l, h
 		}
 	})
-	return out
+	return out, found.Load()
 }
 
 // diagDilate returns the spans of Y that the diagonal pass needs to
