@@ -550,8 +550,17 @@ func (g *region) clip(idx []int, lo, hi int) (int, int) {
 // lo > hi). Sorted, the fixed values f may have at most one gap wider than
 // d, which x must split; with none, x may lie anywhere within d of them.
 func (s *subset) lastRange(u []int) (lo, hi int) {
-	var f [16]int
+	// The m fixed values and x have m sorted gaps of at most d: most rows
+	// of a tile fail that on the range of the fixed values alone.
 	m := len(u) + 1
+	fmin, fmax := 0, 0
+	for _, x := range u {
+		fmin, fmax = min(fmin, x), max(fmax, x)
+	}
+	if fmax-fmin > m*s.d {
+		return 1, 0
+	}
+	var f [16]int
 	copy(f[1:], u)
 	sortSmall(f[:m])
 	lo, hi = f[0]-s.d, f[m-1]+s.d
@@ -920,18 +929,21 @@ func (s *subset) diagPass(a []float64, st, ulo, ext []int, i int, rs []float64, 
 	parallel(s.workers, len(out.lo)*nchunk, func(wk, lo, hi int) {
 		sc := &s.scratch[wk]
 		idx := sc.idx[:k-1]
-		row := lo / nchunk
+		row, c := lo/nchunk, lo%nchunk
 		setIndex(idx, out.ext, row)
 		for u := lo; u < hi; u++ {
-			if r := u / nchunk; r != row {
-				row = r
-				next(idx, out.ext)
+			if u > lo {
+				if c++; c == nchunk {
+					c = 0
+					row++
+					next(idx, out.ext)
+				}
 			}
 			if out.lo[row] > out.hi[row] {
 				continue
 			}
 			jlo, jhi := g.clip(idx, out.lo[row], out.hi[row])
-			e0 := (u % nchunk) * chunk
+			e0 := c * chunk
 			a0, a1 := max(jlo, e0), min(jhi+1, e0+chunk, lastLen)
 			if a0 >= a1 {
 				continue
