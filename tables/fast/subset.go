@@ -47,6 +47,44 @@ type subset struct {
 	fault   atomic.Bool // the rule gave probability to a channel outside the subset
 	work    *work       // where x, r and need come from; nil for arrays of its own
 	budget  int64       // the memory budget
+	planes  []planes    // the rows that the pass along each axis but the last needs
+}
+
+// planes holds, for spans split along axis ax into planes (o, j) of rows
+// (o, j, r), o the indices of the axes before ax, j the index along ax
+// and r those of the axes after it, the first and last r of each plane
+// whose row is not empty (first > last for none).
+type planes struct {
+	first, last []int
+}
+
+// find sets p to the planes of sp along axis ax.
+func (p *planes) find(sp *spans, ax int, workers int) {
+	n := prod(sp.ext[:ax+1])
+	inner := prod(sp.ext[ax+1:])
+	if cap(p.first) < n {
+		p.first, p.last = make([]int, n), make([]int, n)
+	}
+	p.first, p.last = p.first[:n], p.last[:n]
+	parallel(workers, n, func(_, lo, hi int) {
+		for pl := lo; pl < hi; pl++ {
+			f, l := inner, -1
+			rlo, rhi := sp.lo[pl*inner:][:inner], sp.hi[pl*inner:][:inner]
+			for r := range rlo {
+				if rlo[r] <= rhi[r] {
+					f = r
+					break
+				}
+			}
+			for r := inner - 1; r > f; r-- {
+				if rlo[r] <= rhi[r] {
+					l = r
+					break
+				}
+			}
+			p.first[pl], p.last[pl] = f, max(l, f)
+		}
+	})
 }
 
 // work holds the work arrays of an evaluation, kept from one subset to
@@ -121,6 +159,7 @@ func newSubset(l *tables.Layout, rule tables.Rule, q tables.Set, d, workers int,
 	}
 	// Start with one tile covering the box [-span, span]^k and halve the
 	// longest side until the work arrays fit the budget.
+	s.planes = make([]planes, k)
 	s.tile = make([]int, k)
 	for a := range s.tile {
 		s.tile[a] = 2*s.span + 1
@@ -385,6 +424,11 @@ func (s *subset) regrets(ulo, ext []int) (*spans, error) {
 		need[ax] = s.axisDilate(need[ax], need[ax+1], ax)
 	}
 
+	planes := s.planes
+	for ax := 0; ax < k-1; ax++ {
+		planes[ax].find(need[ax+1], ax, s.workers)
+	}
+
 	// Values outside the spans keep whatever an earlier channel or tile
 	// left there: no needed value reads them.
 	nonzero := s.evalRule(xlo, xext, need[0])
@@ -406,7 +450,7 @@ func (s *subset) regrets(ulo, ext []int) (*spans, error) {
 		}
 		a := s.x[i][:size]
 		for ax := 0; ax < k; ax++ {
-			s.axisPass(a, xst, ax, need[ax+1], &g[ax+1], s.stageExt(ext, ax+1))
+			s.axisPass(a, xst, ax, need[ax+1], &planes[ax], &g[ax+1], s.stageExt(ext, ax+1))
 		}
 		s.diagPass(a, xst, ulo, ext, i, rs, need[k+1], &g[k+1])
 	}
@@ -784,7 +828,7 @@ func (s *subset) evalRule(xlo, xext []int, need *spans) []bool {
 // outExt) within the region g: out[.., j, ..] = sum_t p[t] in[.., j+t, ..],
 // with t in increasing order. The result stays at the low indices, in
 // place.
-func (s *subset) axisPass(a []float64, st []int, ax int, out *spans, g *region, outExt []int) {
+func (s *subset) axisPass(a []float64, st []int, ax int, out *spans, pl *planes, g *region, outExt []int) {
 	k := s.k
 	pa := s.p[ax+1]
 	if ax == k-1 {
@@ -817,21 +861,24 @@ func (s *subset) axisPass(a []float64, st []int, ax int, out *spans, g *region, 
 	nchunk := (lastLen + chunk - 1) / chunk
 	sa := st[ax]
 	parallel(s.workers, outer*blocks*nchunk, func(wk, lo, hi int) {
-		sc := &s.scratch[wk]
-		idx, start := sc.idx[:k-1], sc.aux[:k-1]
+		idx := s.scratch[wk].idx[:k-1]
 		for u := lo; u < hi; u++ {
 			e0 := (u % nchunk) * chunk
 			e1 := min(e0+chunk, lastLen)
 			o, r0 := u/nchunk/blocks, (u/nchunk%blocks)*passBlock
 			r1 := min(r0+passBlock, inner)
-			setIndex(start[:ax], out.ext[:ax], o)
-			setIndex(start[ax+1:], out.ext[ax+1:], r0)
+			setIndex(idx[:ax], out.ext[:ax], o)
 			for j := 0; j < jn; j++ {
-				copy(idx, start)
+				// The rows of the block that may not be empty.
+				b0, b1 := max(r0, pl.first[o*jn+j]), min(r1, pl.last[o*jn+j]+1)
+				if b0 >= b1 {
+					continue
+				}
 				idx[ax] = j
-				row := (o*jn+j)*inner + r0
-				for r := r0; r < r1; r, row = r+1, row+1 {
-					if r > r0 {
+				setIndex(idx[ax+1:], out.ext[ax+1:], b0)
+				row := (o*jn+j)*inner + b0
+				for r := b0; r < b1; r, row = r+1, row+1 {
+					if r > b0 {
 						next(idx[ax+1:], out.ext[ax+1:])
 					}
 					if out.lo[row] > out.hi[row] {
