@@ -62,6 +62,10 @@ type Model struct {
 	Smoothing float64
 	// MaxIterations bounds the pricing rounds of one solve (zero: 100000).
 	MaxIterations int
+	// MaxCuts bounds the master within a solve: past this many cuts the
+	// cuts its solution does not use are dropped (but the newest) and it
+	// is rebuilt. Zero means 128 per part of the blocks.
+	MaxCuts int
 
 	ncols int     // columns of the program, t included
 	block []int32 // block of each column (-1: t, or not yet in a block)
@@ -82,8 +86,9 @@ type Model struct {
 	nrows int // rows of the program
 
 	cuts   []*cut // the master's cut rows, in order
-	master *clp.Model
-	stale  bool // the master must be rebuilt before the next solve
+	master   *clp.Model
+	stale    bool // the master must be rebuilt before the next solve
+	rebuilds int  // masters built so far
 
 	center []float64 // the prior of the best lower bound, per linking row
 	bestLB float64
@@ -515,6 +520,7 @@ func (m *Model) rebuild() error {
 	if err != nil {
 		return fmt.Errorf("dw: master: %w", err)
 	}
+	m.rebuilds++
 	mm.Resolve = clp.Dual
 	mm.PrimalTolerance, mm.DualTolerance = 1e-10, 1e-10
 	m.master, m.stale = mm, false
@@ -640,6 +646,23 @@ func (m *Model) Solve(ctx context.Context) (*lp.Solution, error) {
 		if it >= maxIt {
 			return nil, fmt.Errorf("dw: no convergence in %d pricing rounds (master %g, lower bound %g)", maxIt, sigma, m.bestLB)
 		}
+		maxCuts := m.MaxCuts
+		if maxCuts <= 0 {
+			maxCuts = 128 * m.nparts
+		}
+		if len(m.cuts) > maxCuts {
+			// A solve that needs many pricing rounds grows the master
+			// by a dense row each, and its re-solves slow down
+			// (three channels of normal noise: a master of 3,304 cuts
+			// took minutes per round): drop the cuts its solution
+			// does not use, as between solves, and rebuild it.
+			m.prune(dual, maxCuts/4)
+			if m.stale {
+				if err := m.rebuild(); err != nil {
+					return nil, err
+				}
+			}
+		}
 		// Price at the smoothed prior; when its point does not cut off
 		// the master's prior (a mispricing), price at that prior too.
 		sep := pi
@@ -701,7 +724,7 @@ func (m *Model) Solve(ctx context.Context) (*lp.Solution, error) {
 			x[col] += w / m.mult[col]
 		}
 	}
-	m.prune(dual)
+	m.prune(dual, 16*m.nparts)
 	out := make([]float64, m.nrows)
 	for v, row := range m.lrow {
 		out[row] = -m.center[v]
@@ -712,8 +735,7 @@ func (m *Model) Solve(ctx context.Context) (*lp.Solution, error) {
 // prune drops the cuts the master's last solution does not use, except
 // the newest few and the sticky ones, so that the next rebuild stays
 // small. The current master keeps its rows, so it is marked stale.
-func (m *Model) prune(dual []float64) {
-	keepNewest := 16 * m.nparts
+func (m *Model) prune(dual []float64, keepNewest int) {
 	if len(m.cuts) <= 4*keepNewest {
 		return
 	}

@@ -170,18 +170,21 @@ func TestAgainstGonum(t *testing.T) {
 		smoothing float64
 		prefer    bool
 		parts     int
+		maxCuts   int // a small master: pruned and rebuilt within the solve
 	}{
-		{"small", 1, 4, 3, 0, false, 0},
-		{"more rows than blocks", 2, 5, 20, 0, false, 0},
-		{"many blocks", 3, 40, 12, 0, false, 0},
-		{"plain cutting planes", 4, 30, 15, -1, false, 0},
-		{"heavy smoothing", 5, 30, 15, 0.9, false, 0},
-		{"one row", 6, 10, 1, 0, false, 0},
-		{"preferred columns", 7, 30, 15, 0, true, 0},
-		{"preferred columns, many rows", 8, 20, 40, 0, true, 0},
-		{"parts", 9, 30, 15, 0, false, 4},
-		{"parts and preferred columns", 10, 30, 25, 0, true, 3},
-		{"a part per column", 11, 12, 10, 0, true, 1000},
+		{"small", 1, 4, 3, 0, false, 0, 0},
+		{"more rows than blocks", 2, 5, 20, 0, false, 0, 0},
+		{"many blocks", 3, 40, 12, 0, false, 0, 0},
+		{"plain cutting planes", 4, 30, 15, -1, false, 0, 0},
+		{"heavy smoothing", 5, 30, 15, 0.9, false, 0, 0},
+		{"one row", 6, 10, 1, 0, false, 0, 0},
+		{"preferred columns", 7, 30, 15, 0, true, 0, 0},
+		{"preferred columns, many rows", 8, 20, 40, 0, true, 0, 0},
+		{"parts", 9, 30, 15, 0, false, 4, 0},
+		{"parts and preferred columns", 10, 30, 25, 0, true, 3, 0},
+		{"a part per column", 11, 12, 10, 0, true, 1000, 0},
+		{"a small master", 12, 40, 30, 0, false, 0, 8},
+		{"a small master, parts and preferred columns", 13, 40, 30, 0, true, 3, 24},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			rng := rand.New(rand.NewPCG(tc.seed, 7))
@@ -203,9 +206,13 @@ func TestAgainstGonum(t *testing.T) {
 			if tc.parts > 0 {
 				m.Parts(func(col int) int { return col % tc.parts })
 			}
+			m.MaxCuts = tc.maxCuts
 			sol, err := m.Solve(context.Background())
 			if err != nil {
 				t.Fatal(err)
+			}
+			if n := dw.Rebuilds(m); (tc.maxCuts > 0) != (n > 1) {
+				t.Errorf("the master was built %d times with at most %d cuts", n, tc.maxCuts)
 			}
 			if math.Abs(sol.Objective-ref.Objective) > 1e-9*math.Max(1, math.Abs(ref.Objective)) {
 				t.Errorf("optimum %.12g, gonum %.12g", sol.Objective, ref.Objective)

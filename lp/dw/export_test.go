@@ -16,3 +16,6 @@ func BlockPart(m *Model, b int) int { return int(m.bpart[b]) }
 // RowCounts returns the numbers of row values computed by the full
 // product and by updates.
 func RowCounts(m *Model) (full, updates int) { return m.rv.full, m.rv.updates }
+
+// Rebuilds returns the number of times m's master was built.
+func Rebuilds(m *Model) int { return m.rebuilds }
