@@ -85,7 +85,7 @@ type Model struct {
 
 	nrows int // rows of the program
 
-	cuts   []*cut // the master's cut rows, in order
+	cuts     []*cut // the master's cut rows, in order
 	master   *clp.Model
 	stale    bool // the master must be rebuilt before the next solve
 	rebuilds int  // masters built so far
