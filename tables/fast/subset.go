@@ -135,7 +135,19 @@ func (w *work) take(s *subset, xsize, rsize int) {
 	s.x, s.r, s.need = w.x[:m], w.r[:rsize], w.need[:s.k+2]
 }
 
-// scratch is one goroutine's work space.
+// pad is the number of unused values that padded leaves on each side of
+// a slice: at least 128 bytes, two cache lines.
+const pad = 16
+
+// padded returns a slice of n zero values with pad unused values on each
+// side, so that the slices that different goroutines write often never
+// share a cache line (each write would take the line from the other
+// cores).
+func padded[T any](n int) []T {
+	return make([]T, n+2*pad)[pad : pad+n : pad+n]
+}
+
+// scratch is one goroutine's work space; its slices are padded.
 type scratch struct {
 	r        []int
 	p        []float64
@@ -184,16 +196,16 @@ func newSubset(l *tables.Layout, rule tables.Rule, q tables.Set, d, workers int,
 	s.scratch = make([]scratch, workers)
 	for i := range s.scratch {
 		sc := &s.scratch[i]
-		sc.r = make([]int, n)
+		sc.r = padded[int](n)
 		for c := range sc.r {
 			sc.r[c] = tables.Far
 		}
 		sc.r[mem[0]] = 0
-		sc.p = make([]float64, n)
-		sc.tmp = make([]float64, chunk)
-		sc.idx = make([]int, k)
-		sc.aux = make([]int, k)
-		sc.x = make([][]float64, m)
+		sc.p = padded[float64](n)
+		sc.tmp = padded[float64](chunk)
+		sc.idx = padded[int](k)
+		sc.aux = padded[int](k)
+		sc.x = padded[[]float64](m)
 	}
 	for c := 0; c < n; c++ {
 		if !q.Has(c) {
