@@ -103,8 +103,6 @@ type Model struct {
 	base       *point
 	baseBlocks int // blocks the base point's choices were made for
 
-	rv rowCache // for incremental row values
-
 	partOf func(col int) int
 	label  map[int]int32 // partOf's labels to part indices
 	bpart  []int32       // part of each block, as far as computed
@@ -129,9 +127,7 @@ type point struct {
 }
 
 // cut is the part of a pure point in one part of the blocks, with its row
-// values: r[v] = a_v·x restricted to the part's blocks (without b_v). The
-// values are never written once the cut is made (rowValues may keep them
-// as its reference); extending them to new rows makes a new slice.
+// values: r[v] = a_v·x restricted to the part's blocks (without b_v).
 type cut struct {
 	pt     *point
 	part   int32
@@ -253,14 +249,12 @@ func (m *Model) AddRows(p *lp.Problem) error {
 	return nil
 }
 
-// Close frees the master program, and the copy of the linking entries
-// kept for computing row values.
+// Close frees the master program.
 func (m *Model) Close() {
 	if m.master != nil {
 		m.master.Close()
 		m.master = nil
 	}
-	m.rv = rowCache{}
 }
 
 // nlink returns the number of linking rows.
@@ -315,6 +309,46 @@ func (m *Model) assignParts() {
 		m.bpart = append(m.bpart, p)
 	}
 	m.nparts = max(1, len(m.label))
+}
+
+// rowValues returns, per part, a_v·x over the part's blocks of pure point
+// pt, for the linking rows from..nlink-1.
+func (m *Model) rowValues(pt *point, from int) [][]float64 {
+	if len(m.xs) < m.ncols {
+		m.xs = make([]float64, m.ncols)
+	}
+	x := m.xs[:m.ncols]
+	for b, at := range pt.pick {
+		j := m.bcols[m.bstart[b]+int(at)]
+		x[j] = 1 / m.mult[j]
+	}
+	k := m.nlink()
+	out := make([][]float64, m.nparts)
+	for p := range out {
+		out[p] = make([]float64, k-from)
+	}
+	parallelRange(k-from, func(lo, hi int) {
+		for v := from + lo; v < from+hi; v++ {
+			idx, val := m.lidx[m.lstart[v]:m.lstart[v+1]], m.lval[m.lstart[v]:m.lstart[v+1]]
+			if m.nparts == 1 {
+				var s float64
+				for e, j := range idx {
+					s += val[e] * x[j]
+				}
+				out[0][v-from] = s
+				continue
+			}
+			for e, j := range idx {
+				if xj := x[j]; xj != 0 {
+					out[m.bpart[m.block[j]]][v-from] += val[e] * xj
+				}
+			}
+		}
+	})
+	for b, at := range pt.pick {
+		x[m.bcols[m.bstart[b]+int(at)]] = 0
+	}
+	return out
 }
 
 // parallelRange calls f on consecutive parts of [0, n), in parallel.
@@ -468,7 +502,7 @@ func (m *Model) rebuild() error {
 		}
 		rv := m.rowValues(pt, from)
 		for _, c := range byPoint[pt] {
-			c.r = slices.Concat(c.r, rv[c.part][len(c.r)-from:])
+			c.r = append(c.r, rv[c.part][len(c.r)-from:]...)
 		}
 	}
 	// Every part needs a cut: the base point's.

@@ -402,10 +402,12 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 		if len(regs) != len(best.regs) {
 			return nil, fmt.Errorf("constraint generation: the evaluator reported %d configurations, then %d", len(best.regs), len(regs))
 		}
-		if count == 0 {
-			// The round's rule is optimal: no configuration outside the
-			// working set is above the LP value, none inside it by more
-			// than the LP's tolerance.
+		// The round's rule is optimal when no configuration outside the
+		// working set is above the LP value and none inside it by more
+		// than the LP solver's tolerances (the LP's rows hold the
+		// working set's regrets up to them; a hundredfold margin).
+		optimal := count == 0 && top <= sol.Objective*(1+100*tol)+1e-12
+		if optimal {
 			best.snap, best.worst = f.snapshot(), top
 		} else if theta, w := bestMix(regs, best.regs, sol.Objective); w < best.worst {
 			best.snap, best.worst = f.mix(best.snap, theta), w
@@ -417,8 +419,15 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 			opt.Progress(Progress{Round: round, Configs: f.NumConfigs(), LPValue: sol.Objective,
 				WorstCase: top, Best: best.worst, Violations: count, Elapsed: time.Since(start)})
 		}
-		if count == 0 || best.worst <= threshold {
+		if optimal || best.worst <= threshold {
 			return finish(true)
+		}
+		if len(viol) == 0 {
+			// Every violated configuration is in the working set: the
+			// LP's solution breaks its own rows beyond the tolerances,
+			// and another round would add nothing. Ship the best rule,
+			// not converged; its certificate says how far it is.
+			return finish(false)
 		}
 		if round >= maxRounds || (!opt.Deadline.IsZero() && time.Now().After(opt.Deadline)) {
 			return finish(false)

@@ -245,3 +245,47 @@ func TestCGOffsetsErrors(t *testing.T) {
 		})
 	}
 }
+
+// understated is a CLP model that reports an LP value 1% below the one it
+// found, as an LP solved beyond its tolerances would: its rule then breaks
+// the working set's rows by more than the tolerance.
+type understated struct{ stopAt }
+
+func (u *understated) Solve(ctx context.Context) (*lp.Solution, error) {
+	sol, err := u.stopAt.Solve(ctx)
+	if err == nil {
+		sol.Objective *= 0.99
+	}
+	return sol, err
+}
+
+// TestCGNoFalseConvergence: when the LP value understates what the rule
+// reaches on the working set, constraint generation never reports
+// convergence, and what it ships is no better than the optimum of the
+// direct LP (its worst case is the fast evaluator's).
+func TestCGNoFalseConvergence(t *testing.T) {
+	m := model(t, 1, []float64{-2, 0.1, 0.3, 0.2, 0.4}, []float64{0, 0.6, 0.25, 0.15}, []float64{-1, 0.5, 0.1, 0.4})
+	direct := solve(t, m, clp.Solver{PrimalTolerance: 1e-9, DualTolerance: 1e-9})
+	l := direct.l
+	newModel := func(p *lp.Problem) (minimax.Incremental, error) {
+		cm, err := clp.NewModel(p)
+		if err != nil {
+			return nil, err
+		}
+		cm.PrimalTolerance, cm.DualTolerance = 1e-9, 1e-9
+		return &understated{stopAt{m: cm}}, nil
+	}
+	res, err := minimax.SolveCG(context.Background(), l, newModel, minimax.CGOptions{Batch: 4, MaxRounds: 50})
+	if err != nil {
+		t.Fatal(err)
+	}
+	w, err := fast.WorstCase(l, res.F.Tables, l.D)
+	if err != nil {
+		t.Fatal(err)
+	}
+	opt := direct.sol.Objective
+	if res.Converged || math.Abs(w.Regret-res.WorstCase) > 1e-12*w.Regret || w.Regret < opt*(1-1e-9) {
+		t.Errorf("converged %v after %d rounds; worst case %.12g (reported %.12g), optimum %.12g",
+			res.Converged, res.Rounds, w.Regret, res.WorstCase, opt)
+	}
+}
