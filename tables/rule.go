@@ -2,6 +2,8 @@ package tables
 
 import (
 	"fmt"
+	"math"
+	"slices"
 )
 
 // A Rule maps a reading vector to the probability of picking each channel.
@@ -222,6 +224,31 @@ func NewOptimal(l *Layout) *Optimal {
 		o.byset[s] = t
 	}
 	return o
+}
+
+// SetHalf sets the offsets of missing cells to a copy of half (nil: none)
+// after checking that there is one per channel and that each fits in 32
+// bits, as the generated C holds it. names, when not nil, names the
+// channels in messages.
+func (o *Optimal) SetHalf(half []int, names []string) error {
+	if half == nil {
+		o.Half = nil
+		return nil
+	}
+	if n := o.Layout.N(); len(half) != n {
+		return fmt.Errorf("%d offsets for %d channels", len(half), n)
+	}
+	for i, h := range half {
+		if h < math.MinInt32 || h > math.MaxInt32 {
+			name := fmt.Sprint(i)
+			if names != nil {
+				name = fmt.Sprintf("%q", names[i])
+			}
+			return fmt.Errorf("offset %d of channel %s is out of range", h, name)
+		}
+	}
+	o.Half = slices.Clone(half)
+	return nil
 }
 
 // Table returns the table of group g, or nil.

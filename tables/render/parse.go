@@ -4,7 +4,6 @@ import (
 	"fmt"
 	"math"
 	"math/big"
-	"slices"
 	"strconv"
 	"strings"
 
@@ -128,21 +127,7 @@ func (b *builder) finish() (*tables.Optimal, error) { return b.o, nil }
 
 // setHalf sets the offsets of readings without a cell, in half steps (nil:
 // none).
-func (b *builder) setHalf(half []int) error {
-	if half == nil {
-		return nil
-	}
-	if len(half) != len(b.names) {
-		return fmt.Errorf("%d offsets for %d channels", len(half), len(b.names))
-	}
-	for i, h := range half {
-		if h < math.MinInt32 || h > math.MaxInt32 {
-			return fmt.Errorf("offset %d of channel %q is out of range", h, b.names[i])
-		}
-	}
-	b.o.Half = slices.Clone(half)
-	return nil
-}
+func (b *builder) setHalf(half []int) error { return b.o.SetHalf(half, b.names) }
 
 // parseProb reads a probability in [0, 1] written as a decimal or as a
 // fraction "a/b".

@@ -2,9 +2,7 @@ package result
 
 import (
 	"fmt"
-	"math"
 	"math/big"
-	"slices"
 	"strconv"
 
 	"github.com/pickwise/pickwise/discretize"
@@ -137,16 +135,12 @@ func (f *File) Solution() (*Solution, error) {
 		byName[c.Name] = i
 	}
 	o := tables.NewOptimal(l)
-	if f.MissingHalf != nil {
-		if len(f.MissingHalf) != l.N() {
-			return nil, mismatch("missing_cell_half_steps", "%d offsets for %d channels", len(f.MissingHalf), l.N())
-		}
-		for i, h := range f.MissingHalf {
-			if h < math.MinInt32 || h > math.MaxInt32 {
-				return nil, mismatch("missing_cell_half_steps", "offset %d of channel %q is out of range", h, m.Channels[i].Name)
-			}
-		}
-		o.Half = slices.Clone(f.MissingHalf)
+	names := make([]string, len(m.Channels))
+	for i, c := range m.Channels {
+		names[i] = c.Name
+	}
+	if err := o.SetHalf(f.MissingHalf, names); err != nil {
+		return nil, mismatch("missing_cell_half_steps", "%v", err)
 	}
 	for ti, ft := range f.Tables {
 		var g tables.Set
@@ -297,7 +291,8 @@ func Verify(f *File) (*Report, error) {
 	}
 
 	// Heuristics.
-	gr, half, of, err := heuristics(l)
+	half := l.OffsetHalfSteps()
+	gr, of, err := heuristics(l, half)
 	if err != nil {
 		return nil, err
 	}
