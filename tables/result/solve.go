@@ -164,6 +164,9 @@ func Solve(ctx context.Context, m *discretize.Model, opt Options) (*Solution, er
 		}
 	}
 	s := &Solution{Model: m, Layout: l, Solver: solver.Name(), Method: method, ProbBits: ProbBits, Converged: true}
+	// The offset rule's offsets: its figure, and the offsets of cells
+	// that constraint generation leaves without columns.
+	half := l.OffsetHalfSteps()
 
 	var f *minimax.Formulation
 	var sol *lp.Solution
@@ -200,7 +203,7 @@ func Solve(ctx context.Context, m *discretize.Model, opt Options) (*Solution, er
 		// better start, and a far better rule away from the working
 		// set, than the highest reading.
 		cg := minimax.CGOptions{Progress: opt.Progress, NoSymmetry: opt.NoSymmetry}
-		if half := l.OffsetHalfSteps(); slices.ContainsFunc(half, func(h int) bool { return h != 0 }) {
+		if slices.ContainsFunc(half, func(h int) bool { return h != 0 }) {
 			cg.Half = half
 		}
 		if opt.TimeLimit > 0 {
@@ -269,7 +272,8 @@ func Solve(ctx context.Context, m *discretize.Model, opt Options) (*Solution, er
 	t3 := time.Now()
 	s.Timing.Certify = t3.Sub(t2)
 
-	if s.Greedy, s.OffsetHalf, s.Offset, err = heuristics(l); err != nil {
+	s.OffsetHalf = half
+	if s.Greedy, s.Offset, err = heuristics(l, half); err != nil {
 		return nil, err
 	}
 	s.Timing.Heuristics = time.Since(t3)
@@ -374,14 +378,14 @@ func polish(ctx context.Context, solver lp.Solver, f *minimax.Formulation, t flo
 // and the prior are accurate well beyond the certificate's 1e-9.
 const tolerance = 1e-9
 
-// heuristics returns the exact figures of greedy and of the offset rule.
-func heuristics(l *tables.Layout) (greedy Figure, half []int, offset Figure, err error) {
+// heuristics returns the exact figures of greedy and of the offset rule
+// with offsets half (l.OffsetHalfSteps()).
+func heuristics(l *tables.Layout, half []int) (greedy Figure, offset Figure, err error) {
 	g, err := exact.WorstCaseScreened(l, exact.Greedy(l.N()), l.D+GreedyWidth(l))
 	if err != nil {
 		return
 	}
 	greedy = Figure{Regret: g.Regret, Worst: g.Values}
-	half = l.OffsetHalfSteps()
 	o, err := exact.WorstCaseScreened(l, exact.Offset(half), l.D+tables.OffsetWidth(half))
 	if err != nil {
 		return
