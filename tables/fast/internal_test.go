@@ -26,18 +26,7 @@ func TestEarlierIsEnumerationOrder(t *testing.T) {
 // TestTiles checks that a small memory budget splits the box of a subset
 // into tiles that fit it, and that an impossible one is refused.
 func TestTiles(t *testing.T) {
-	m := &discretize.Model{Step: 1}
-	for i, w := range [][]float64{{1, 2, 1}, {1, 0, 1, 1}, {2, 1, 1, 1, 1}} {
-		p, err := discretize.Quantize(-1, w)
-		if err != nil {
-			t.Fatal(err)
-		}
-		m.Channels = append(m.Channels, discretize.Channel{Name: string(rune('A' + i)), Kind: "pmf", PMF: p})
-	}
-	l, err := tables.NewLayout(m)
-	if err != nil {
-		t.Fatal(err)
-	}
+	l := pmfLayout(t, []float64{-1, 1, 2, 1}, []float64{-1, 1, 0, 1, 1}, []float64{-1, 2, 1, 1, 1, 1})
 	q := tables.SetOf(0, 1, 2)
 	whole, err := newSubset(l, tables.Greedy{}, q, l.D, 1, DefaultMaxBytes)
 	if err != nil {
@@ -85,4 +74,23 @@ func TestLastRange(t *testing.T) {
 			}
 		}
 	}
+}
+
+// pmfLayout returns the layout of a model at step 1 with one channel per
+// pmf: the lowest noise offset in steps, then the weights from it up.
+func pmfLayout(t testing.TB, pmfs ...[]float64) *tables.Layout {
+	t.Helper()
+	m := &discretize.Model{Step: 1}
+	for i, w := range pmfs {
+		p, err := discretize.Quantize(int(w[0]), w[1:])
+		if err != nil {
+			t.Fatal(err)
+		}
+		m.Channels = append(m.Channels, discretize.Channel{Name: string(rune('A' + i)), Kind: "pmf", PMF: p})
+	}
+	l, err := tables.NewLayout(m)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return l
 }

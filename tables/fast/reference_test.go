@@ -6,7 +6,6 @@ import (
 	"math/rand/v2"
 	"testing"
 
-	"github.com/pickwise/pickwise/discretize"
 	"github.com/pickwise/pickwise/tables"
 )
 
@@ -234,21 +233,6 @@ func TestBitForBit(t *testing.T) {
 		{1, 1},
 		{-3, 0.3, 0.1, 0.25, 0.35},
 	}
-	model := func(n int) *tables.Layout {
-		m := &discretize.Model{Step: 1}
-		for i := 0; i < n; i++ {
-			p, err := discretize.Quantize(int(pmfs[i][0]), pmfs[i][1:])
-			if err != nil {
-				t.Fatal(err)
-			}
-			m.Channels = append(m.Channels, discretize.Channel{Name: string(rune('A' + i)), Kind: "pmf", PMF: p})
-		}
-		l, err := tables.NewLayout(m)
-		if err != nil {
-			t.Fatal(err)
-		}
-		return l
-	}
 	rng := rand.New(rand.NewPCG(5, 6))
 	cases := []struct {
 		n, d  int
@@ -264,7 +248,7 @@ func TestBitForBit(t *testing.T) {
 		{5, 2, true},
 	}
 	for _, c := range cases {
-		l := model(c.n)
+		l := pmfLayout(t, pmfs[:c.n]...)
 		rules := []struct {
 			name string
 			rule tables.Rule
