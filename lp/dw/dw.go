@@ -57,8 +57,20 @@ type Model struct {
 	// Tol*max(1, |optimum|). Zero means 1e-11.
 	Tol float64
 	// Smoothing is Wentges' weight of the best prior so far in the prior
-	// that is priced: 0 is Kelley's plain cutting planes. Zero means 0.5;
-	// a negative value means 0.
+	// that is priced: 0 is Kelley's plain cutting planes. A positive
+	// value fixes the weight; a negative value means 0. Zero means an
+	// adaptive weight: it starts at 0.5 and, after every pricing at a
+	// smoothed prior, falls by 0.1 (to at least 0.1) when the dual
+	// function still rises from there towards the master's prior (the
+	// subgradient's slope along the step from the best prior to the
+	// master's is positive) and otherwise rises a tenth of the way to
+	// 1 (at most 0.99): the self-adjusting smoothing of Pessoa, Sadykov,
+	// Uchoa and Vanderbeck (INFORMS J. Computing 30(2), 2018).
+	// (Constraint generation on three channels of normal noise at step
+	// 0.1: 15 rounds and 44 s instead of 25 rounds and 71 s with 0.5;
+	// four channels with 15-point pmfs: 181 s instead of 199 s, and
+	// from scratch on a working set of 1,281 rows 8.7 s instead of
+	// 18.9 s.)
 	Smoothing float64
 	// MaxIterations bounds the pricing rounds of one solve (zero: 100000).
 	MaxIterations int
@@ -601,8 +613,9 @@ func (m *Model) Solve(ctx context.Context) (*lp.Solution, error) {
 		tol = 1e-11
 	}
 	alpha := m.Smoothing
+	adaptive := alpha == 0
 	switch {
-	case alpha == 0:
+	case adaptive:
 		alpha = 0.5
 	case alpha < 0:
 		alpha = 0
@@ -724,6 +737,25 @@ func (m *Model) Solve(ctx context.Context) (*lp.Solution, error) {
 				m.addCut(cr, c)
 				for v, w := range pi {
 					at += w * c.r[v]
+				}
+			}
+			if smoothed && adaptive {
+				// The subgradient at the smoothed prior, along the
+				// step from the centre to the master's prior: when
+				// the dual function still rises there, smooth less;
+				// otherwise more.
+				var slope float64
+				for v := range k {
+					g := -m.lb[v]
+					for _, c := range cs {
+						g += c.r[v]
+					}
+					slope += g * (pi[v] - m.center[v])
+				}
+				if slope > 0 {
+					alpha = math.Max(0.1, alpha-0.1)
+				} else {
+					alpha = math.Min(0.99, alpha+(1-alpha)*0.1)
 				}
 			}
 			if at < sigma-tol*math.Max(1, math.Abs(sigma)) || !smoothed {

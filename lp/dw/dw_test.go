@@ -177,6 +177,7 @@ func TestAgainstGonum(t *testing.T) {
 		{"many blocks", 3, 40, 12, 0, false, 0, 0},
 		{"plain cutting planes", 4, 30, 15, -1, false, 0, 0},
 		{"heavy smoothing", 5, 30, 15, 0.9, false, 0, 0},
+		{"fixed smoothing", 14, 30, 15, 0.5, true, 3, 0},
 		{"one row", 6, 10, 1, 0, false, 0, 0},
 		{"preferred columns", 7, 30, 15, 0, true, 0, 0},
 		{"preferred columns, many rows", 8, 20, 40, 0, true, 0, 0},
