@@ -226,6 +226,14 @@ func NewOptimal(l *Layout) *Optimal {
 	return o
 }
 
+// Blank returns tables with the layout of o and its offsets of missing
+// cells, and no cells: the start of a copy of o with other probabilities.
+func (o *Optimal) Blank() *Optimal {
+	out := NewOptimal(o.Layout)
+	out.Half = slices.Clone(o.Half)
+	return out
+}
+
 // SetHalf sets the offsets of missing cells to a copy of half (nil: none)
 // after checking that there is one per channel and that each fits in 32
 // bits, as the generated C holds it. names, when not nil, names the
@@ -334,13 +342,19 @@ func Fallback(alive Set, r []int, half []int) int {
 		if !alive.Has(i) {
 			continue
 		}
-		s := 2 * r[i]
-		if half != nil {
-			s += half[i]
-		}
-		if best < 0 || s > top {
+		if s := FallbackScore(r[i], half, i); best < 0 || s > top {
 			best, top = i, s
 		}
 	}
 	return best
+}
+
+// FallbackScore returns the score by which Fallback ranks channel i with
+// reading r: 2*r + half[i] (2*r when half is nil), the reading plus its
+// offset in half steps.
+func FallbackScore(r int, half []int, i int) int {
+	if half == nil {
+		return 2 * r
+	}
+	return 2*r + half[i]
 }

@@ -2,6 +2,7 @@ package tables
 
 import (
 	"math/rand/v2"
+	"slices"
 	"testing"
 )
 
@@ -102,5 +103,31 @@ func TestFallback(t *testing.T) {
 				t.Errorf("Fallback(%b, %v, %v) = %d, want %d", tc.alive, tc.r, tc.half, got, tc.want)
 			}
 		})
+	}
+}
+
+func TestBlank(t *testing.T) {
+	l := &Layout{Lo: []int{0, 0, 0}, Hi: []int{1, 1, 1}, P: [][]float64{{0.5, 0.5}, {0.5, 0.5}, {0.5, 0.5}}, G: 2, S: 1, T: 3, D: 4}
+	o := NewOptimal(l)
+	if err := o.SetHalf([]int{1, -2, 0}, nil); err != nil {
+		t.Fatal(err)
+	}
+	ab := o.Table(SetOf(0, 1))
+	ab.Cells = append(ab.Cells, Cell{Diff: []int{0, 1}, Alive: SetOf(0, 1), P: []float64{0.5, 0.5}})
+	b := o.Blank()
+	if b.Layout != l || len(b.Tables) != len(o.Tables) {
+		t.Fatalf("Blank has layout %p and %d tables, want %p and %d", b.Layout, len(b.Tables), l, len(o.Tables))
+	}
+	for _, tb := range b.Tables {
+		if len(tb.Cells) != 0 {
+			t.Errorf("group %v: %d cells, want none", tb.Members, len(tb.Cells))
+		}
+	}
+	if !slices.Equal(b.Half, o.Half) {
+		t.Fatalf("Half = %v, want %v", b.Half, o.Half)
+	}
+	b.Half[0] = 7
+	if o.Half[0] != 1 {
+		t.Errorf("Blank's offsets share storage with the original's")
 	}
 }

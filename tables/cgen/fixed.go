@@ -4,7 +4,6 @@ import (
 	"fmt"
 	"math"
 	"math/big"
-	"slices"
 	"sort"
 
 	"github.com/pickwise/pickwise/tables"
@@ -42,8 +41,7 @@ func Quantize(o *tables.Optimal) (*Fixed, error) {
 	if o == nil || o.Layout == nil {
 		return nil, fmt.Errorf("cgen: no table to quantize")
 	}
-	out := tables.NewOptimal(o.Layout)
-	out.Half = slices.Clone(o.Half)
+	out := o.Blank()
 	if len(out.Tables) != len(o.Tables) {
 		return nil, fmt.Errorf("cgen: table has %d groups, its layout %d", len(o.Tables), len(out.Tables))
 	}

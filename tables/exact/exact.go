@@ -15,7 +15,6 @@ import (
 	"math"
 	"math/big"
 	"math/bits"
-	"slices"
 
 	"github.com/pickwise/pickwise/discretize"
 	"github.com/pickwise/pickwise/tables"
@@ -190,8 +189,7 @@ func Snap(o *tables.Optimal, bits uint) *tables.Optimal {
 // elsewhere, with the largest entry (or the first alive channel, when none
 // is positive) absorbing the residue so that every cell sums to den.
 func remap(o *tables.Optimal, den int64, num func(p float64) int64) *tables.Optimal {
-	out := tables.NewOptimal(o.Layout)
-	out.Half = slices.Clone(o.Half)
+	out := o.Blank()
 	r := make([]int, o.Layout.N())
 	for ti, t := range o.Tables {
 		dst := out.Tables[ti]

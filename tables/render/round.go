@@ -4,7 +4,6 @@ import (
 	"fmt"
 	"math"
 	"math/big"
-	"slices"
 	"sort"
 
 	"github.com/pickwise/pickwise/tables"
@@ -58,8 +57,7 @@ func Round(sol *result.Solution) (*Printed, error) {
 // roundTables returns a copy of o with probabilities rounded to 1/Den.
 func roundTables(o *tables.Optimal) (*tables.Optimal, error) {
 	l := o.Layout
-	out := tables.NewOptimal(l)
-	out.Half = slices.Clone(o.Half)
+	out := o.Blank()
 	r := make([]int, l.N())
 	for ti, t := range o.Tables {
 		dst := out.Tables[ti]
