@@ -15,6 +15,7 @@ import (
 	"testing"
 
 	"github.com/pickwise/pickwise/discretize"
+	"github.com/pickwise/pickwise/lp/gonumlp"
 	"github.com/pickwise/pickwise/tables"
 	"github.com/pickwise/pickwise/tables/exact"
 	"github.com/pickwise/pickwise/tables/result"
@@ -444,6 +445,28 @@ func TestCGOffsetsFile(t *testing.T) {
 			var mm *result.Mismatch
 			if !errors.As(err, &mm) || !strings.Contains(err.Error(), tc.want) {
 				t.Errorf("got %v, want a mismatch naming %q", err, tc.want)
+			}
+		})
+	}
+}
+
+// TestSolveOptionErrors holds Solve to refusing bad options before any
+// work starts, with messages that name the bad value.
+func TestSolveOptionErrors(t *testing.T) {
+	m := model(t, 1, []float64{0, 0.5, 0.5}, []float64{-1, 0.3, 0.7})
+	for _, tc := range []struct {
+		name string
+		opt  result.Options
+		want string
+	}{
+		{"unknown method", result.Options{Method: "simplex"}, `unknown method "simplex"`},
+		{"unknown working-set solver", result.Options{Method: result.MethodCG, Master: "bundle"}, `unknown working-set solver "bundle"`},
+		{"cg with a backend other than clp", result.Options{Method: result.MethodCG, Solver: gonumlp.Solver{}}, "needs the clp backend, not gonum"},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			_, err := result.Solve(context.Background(), m, tc.opt)
+			if err == nil || !strings.Contains(err.Error(), tc.want) {
+				t.Fatalf("Solve: error %v, want one containing %q", err, tc.want)
 			}
 		})
 	}

@@ -166,6 +166,14 @@ func Solve(ctx context.Context, m *discretize.Model, opt Options) (*Solution, er
 			method = MethodCG
 		}
 	}
+	switch {
+	case method != MethodDirect && method != MethodCG:
+		return nil, fmt.Errorf("unknown method %q (want auto, direct or cg)", method)
+	case method == MethodCG && opt.Master != "" && opt.Master != MasterDW && opt.Master != MasterCLP:
+		return nil, fmt.Errorf("unknown working-set solver %q (want %s or %s)", opt.Master, MasterDW, MasterCLP)
+	case method == MethodCG && solver.Name() != "clp":
+		return nil, fmt.Errorf("constraint generation needs the clp backend, not %s", solver.Name())
+	}
 	s := &Solution{Model: m, Layout: l, Solver: solver.Name(), Method: method, ProbBits: ProbBits, Converged: true}
 	// The offset rule's offsets: its figure, and the offsets of cells
 	// that constraint generation leaves without columns.
@@ -222,9 +230,6 @@ func Solve(ctx context.Context, m *discretize.Model, opt Options) (*Solution, er
 			s.Timing.Polish = time.Since(t2)
 		}
 	case MethodCG:
-		if solver.Name() != "clp" {
-			return nil, fmt.Errorf("constraint generation needs the clp backend, not %s", solver.Name())
-		}
 		// Cells that no configuration of the working set reaches pick
 		// as the offset rule does: on biased or unequal noise a far
 		// better start, and a far better rule away from the working
@@ -236,14 +241,9 @@ func Solve(ctx context.Context, m *discretize.Model, opt Options) (*Solution, er
 		if opt.TimeLimit > 0 {
 			cg.Deadline = t0.Add(opt.TimeLimit)
 		}
-		var inner func(*lp.Problem) (minimax.Incremental, error)
-		switch opt.Master {
-		case "", MasterDW:
-			inner = newDWIncremental
-		case MasterCLP:
+		inner := newDWIncremental
+		if opt.Master == MasterCLP {
 			inner = newCLPIncremental(tolerance)
-		default:
-			return nil, fmt.Errorf("unknown working-set solver %q (want %s or %s)", opt.Master, MasterDW, MasterCLP)
 		}
 		res, err := minimax.SolveCG(ctx, l, inner, cg)
 		if err != nil {
@@ -253,8 +253,6 @@ func Solve(ctx context.Context, m *discretize.Model, opt Options) (*Solution, er
 		s.Converged, s.Rounds = res.Converged, res.Rounds
 		s.Rows, s.Columns, s.Nonzeros = f.Problem.NumRows(), f.Problem.NumCols(), f.Problem.NumNonzeros()
 		s.Timing.Solve = time.Since(t0)
-	default:
-		return nil, fmt.Errorf("unknown method %q (want auto, direct or cg)", method)
 	}
 	s.Objective, s.Iterations = sol.Objective, sol.Iterations
 
