@@ -180,25 +180,30 @@ func Solve(ctx context.Context, m *discretize.Model, opt Options) (*Solution, er
 	half := l.OffsetHalfSteps()
 
 	// The exact figures of greedy and of the offset rule do not depend
-	// on the LP: they are computed alongside it, on the cores that the
-	// LP leaves idle (CLP is serial). A return before they are taken
-	// waits for them, so that no work outlives Solve.
+	// on the LP: they are computed alongside it (start, once the LP is
+	// known to be within reach), on the cores that the LP leaves idle
+	// (CLP is serial). A return before they are taken waits for them,
+	// so that no work outlives Solve.
 	type figures struct {
 		greedy, offset Figure
 		took           time.Duration
 		err            error
 	}
 	heur := make(chan figures, 1)
-	go func() {
-		t := time.Now()
-		var h figures
-		h.greedy, h.offset, h.err = heuristics(l, half)
-		h.took = time.Since(t)
-		heur <- h
-	}()
+	started := false
+	start := func() {
+		started = true
+		go func() {
+			t := time.Now()
+			var h figures
+			h.greedy, h.offset, h.err = heuristics(l, half)
+			h.took = time.Since(t)
+			heur <- h
+		}()
+	}
 	taken := false
 	defer func() {
-		if !taken {
+		if started && !taken {
 			<-heur
 		}
 	}()
@@ -212,6 +217,7 @@ func Solve(ctx context.Context, m *discretize.Model, opt Options) (*Solution, er
 		if err != nil {
 			return nil, err
 		}
+		start()
 		s.Rows, s.Columns, s.Nonzeros = f.Problem.NumRows(), f.Problem.NumCols(), f.Problem.NumNonzeros()
 		t1 := time.Now()
 		s.Timing.Build = t1.Sub(t0)
@@ -245,6 +251,7 @@ func Solve(ctx context.Context, m *discretize.Model, opt Options) (*Solution, er
 		if opt.Master == MasterCLP {
 			inner = newCLPIncremental(tolerance)
 		}
+		start()
 		res, err := minimax.SolveCG(ctx, l, inner, cg)
 		if err != nil {
 			return nil, err
