@@ -235,7 +235,7 @@ func writeSummary(w io.Writer, sol *result.Solution, timing bool) {
 	fmt.Fprintf(w, "\nLP (%s, %s): %d rows, %d columns, %d nonzeros", sol.Solver, methodText(sol), sol.Rows, sol.Columns, sol.Nonzeros)
 	if timing {
 		tm := sol.Timing
-		fmt.Fprintf(w, "; build %s, solve %s, polish %s, certify %s; greedy and offset figures %s alongside",
+		fmt.Fprintf(w, "; build %s, solve %s, polish %s, certify %s; greedy and offset figures %s",
 			tm.Build.Round(1e6), tm.Solve.Round(1e6), tm.Polish.Round(1e6), tm.Certify.Round(1e6), tm.Heuristics.Round(1e6))
 	}
 	fmt.Fprintf(w, "\n\n%s\n", caution)

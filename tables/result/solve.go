@@ -84,8 +84,9 @@ type Figure struct {
 // Timing records where the time of a solve went.
 type Timing struct {
 	Build, Solve, Polish, Certify time.Duration
-	// Heuristics is the time of the greedy and offset figures, which
-	// are computed alongside the rest: it overlaps the others.
+	// Heuristics is the time of the greedy and offset figures. Without
+	// a time limit they are computed alongside the LP, so it overlaps
+	// Build, Solve, Polish and Certify.
 	Heuristics time.Duration
 }
 
