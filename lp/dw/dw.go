@@ -68,9 +68,12 @@ type Model struct {
 	// Uchoa and Vanderbeck (INFORMS J. Computing 30(2), 2018).
 	// (Constraint generation on three channels of normal noise at step
 	// 0.1: 15 rounds and 44 s instead of 25 rounds and 71 s with 0.5;
-	// four channels with 15-point pmfs: 181 s instead of 199 s, and
-	// from scratch on a working set of 1,281 rows 8.7 s instead of
-	// 18.9 s.)
+	// four channels with 15-point pmfs: 181 s instead of 199 s. From
+	// scratch on fixed working sets the gain is less clear: 16.7 s
+	// instead of 18.9 s on four channels (1,281 rows), 15.5 s instead
+	// of 8.6 s on three channels of normal noise (1,454 rows); most of
+	// the gain above is in the rounds' rules, which move with the
+	// master's round-off.)
 	Smoothing float64
 	// MaxIterations bounds the pricing rounds of one solve (zero: 100000).
 	MaxIterations int
