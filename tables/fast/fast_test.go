@@ -18,20 +18,6 @@ import (
 	"gonum.org/v1/gonum/stat/distuv"
 )
 
-// pmfModel builds a model at step 1 from pmfs given as {lo, weights...}.
-func pmfModel(t testing.TB, pmfs ...[]float64) *discretize.Model {
-	t.Helper()
-	m := &discretize.Model{Step: 1}
-	for i, w := range pmfs {
-		p, err := discretize.Quantize(int(w[0]), w[1:])
-		if err != nil {
-			t.Fatal(err)
-		}
-		m.Channels = append(m.Channels, discretize.Channel{Name: string(rune('A' + i)), Kind: "pmf", PMF: p})
-	}
-	return m
-}
-
 // randomModel returns n channels with seeded random pmfs of lo..hi support
 // points (both ends positive, inner points possibly zero) and random
 // offsets, so that the noise may be biased.
@@ -49,7 +35,7 @@ func randomModel(t testing.TB, rng *rand.Rand, n, lo, hi int) *discretize.Model 
 		}
 		pmfs = append(pmfs, w)
 	}
-	return pmfModel(t, pmfs...)
+	return fast.PMFModel(t, pmfs...)
 }
 
 func layout(t testing.TB, m *discretize.Model) *tables.Layout {
@@ -271,9 +257,9 @@ func dyadicTable(l *tables.Layout, rng *rand.Rand, d int) *tables.Optimal {
 // the two must agree bit for bit, including which configuration wins among
 // the many that tie at the worst case (the first in enumeration order).
 func TestWorstCaseTies(t *testing.T) {
-	two := pmfModel(t, []float64{-1, 0.25, 0.5, 0.25}, []float64{-1, 0.25, 0.5, 0.25})
-	three := pmfModel(t, []float64{-1, 0.25, 0.5, 0.25}, []float64{0, 0.5, 0.5}, []float64{-1, 0.5, 0, 0.5})
-	four := pmfModel(t, []float64{0, 1}, []float64{-1, 0.5, 0.5}, []float64{-1, 0.5, 0.5}, []float64{0, 0.5, 0.5})
+	two := fast.PMFModel(t, []float64{-1, 0.25, 0.5, 0.25}, []float64{-1, 0.25, 0.5, 0.25})
+	three := fast.PMFModel(t, []float64{-1, 0.25, 0.5, 0.25}, []float64{0, 0.5, 0.5}, []float64{-1, 0.5, 0, 0.5})
+	four := fast.PMFModel(t, []float64{0, 1}, []float64{-1, 0.5, 0.5}, []float64{-1, 0.5, 0.5}, []float64{0, 0.5, 0.5})
 	cases := []struct {
 		name  string
 		m     *discretize.Model
@@ -408,7 +394,7 @@ func solve(t testing.TB, m *discretize.Model) *result.Solution {
 // result.Solve ships for small models.
 func TestNormalAndSolved(t *testing.T) {
 	normal := normalModel(t, 1, 1e-4, 0.8, 1, 1.6)
-	small := pmfModel(t, []float64{-1, 1, 2, 1}, []float64{0, 1, 1}, []float64{-1, 1, 0, 3})
+	small := fast.PMFModel(t, []float64{-1, 1, 2, 1}, []float64{0, 1, 1}, []float64{-1, 1, 0, 3})
 	solvedSmall := solve(t, small)
 	solvedNormal := solve(t, normalModel(t, 0.5, 1e-2, 0.5, 0.5, 1))
 	cases := []struct {
@@ -556,7 +542,7 @@ func TestCandidates(t *testing.T) {
 		}
 	}
 
-	s := solve(t, pmfModel(t, []float64{-1, 1, 2, 1}, []float64{0, 1, 1}, []float64{-1, 1, 0, 3}))
+	s := solve(t, fast.PMFModel(t, []float64{-1, 1, 2, 1}, []float64{0, 1, 1}, []float64{-1, 1, 0, 3}))
 	et, err := exact.NewTable(s.Tables, s.ProbBits)
 	if err != nil {
 		t.Fatal(err)
@@ -593,7 +579,7 @@ func (farRule) Probs(r []int, p []float64) {
 // TestErrors checks that bad arguments and impossible budgets are
 // reported as errors.
 func TestErrors(t *testing.T) {
-	l := layout(t, pmfModel(t, []float64{-1, 1, 1, 1}, []float64{0, 1, 1}, []float64{-1, 1, 0, 3}))
+	l := layout(t, fast.PMFModel(t, []float64{-1, 1, 1, 1}, []float64{0, 1, 1}, []float64{-1, 1, 0, 3}))
 	cases := []struct {
 		name string
 		run  func() error

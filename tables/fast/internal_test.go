@@ -76,9 +76,10 @@ func TestLastRange(t *testing.T) {
 	}
 }
 
-// pmfLayout returns the layout of a model at step 1 with one channel per
-// pmf: the lowest noise offset in steps, then the weights from it up.
-func pmfLayout(t testing.TB, pmfs ...[]float64) *tables.Layout {
+// PMFModel returns a model at step 1 with one channel per pmf: the lowest
+// noise offset in steps, then the weights from it up. It is exported for
+// the package's external tests, which share it.
+func PMFModel(t testing.TB, pmfs ...[]float64) *discretize.Model {
 	t.Helper()
 	m := &discretize.Model{Step: 1}
 	for i, w := range pmfs {
@@ -88,7 +89,13 @@ func pmfLayout(t testing.TB, pmfs ...[]float64) *tables.Layout {
 		}
 		m.Channels = append(m.Channels, discretize.Channel{Name: string(rune('A' + i)), Kind: "pmf", PMF: p})
 	}
-	l, err := tables.NewLayout(m)
+	return m
+}
+
+// pmfLayout returns the layout of PMFModel(t, pmfs...).
+func pmfLayout(t testing.TB, pmfs ...[]float64) *tables.Layout {
+	t.Helper()
+	l, err := tables.NewLayout(PMFModel(t, pmfs...))
 	if err != nil {
 		t.Fatal(err)
 	}
