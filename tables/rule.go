@@ -34,10 +34,7 @@ func (o Offset) Probs(r []int, p []float64) { argmaxShare(r, o.Half, p) }
 func argmaxShare(r []int, half []int, p []float64) {
 	best, count := 0, 0
 	for i, x := range r {
-		s := 2 * x
-		if half != nil {
-			s += half[i]
-		}
+		s := OffsetScore(x, half, i)
 		switch {
 		case count == 0 || s > best:
 			best, count = s, 1
@@ -47,10 +44,7 @@ func argmaxShare(r []int, half []int, p []float64) {
 	}
 	w := 1 / float64(count)
 	for i, x := range r {
-		s := 2 * x
-		if half != nil {
-			s += half[i]
-		}
+		s := OffsetScore(x, half, i)
 		if s == best {
 			p[i] = w
 		} else {
@@ -342,17 +336,17 @@ func Fallback(alive Set, r []int, half []int) int {
 		if !alive.Has(i) {
 			continue
 		}
-		if s := FallbackScore(r[i], half, i); best < 0 || s > top {
+		if s := OffsetScore(r[i], half, i); best < 0 || s > top {
 			best, top = i, s
 		}
 	}
 	return best
 }
 
-// FallbackScore returns the score by which Fallback ranks channel i with
-// reading r: 2*r + half[i] (2*r when half is nil), the reading plus its
-// offset in half steps.
-func FallbackScore(r int, half []int, i int) int {
+// OffsetScore returns the score by which the offset rule and Fallback rank
+// channel i with reading r: 2*r + half[i] (2*r when half is nil), the
+// reading plus its offset in half steps.
+func OffsetScore(r int, half []int, i int) int {
 	if half == nil {
 		return 2 * r
 	}

@@ -327,7 +327,7 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 		pm.Prefer(func(col int) float64 {
 			v := f.Vars[col-1]
 			t := f.Tables.Table(v.Group)
-			return -float64(tables.FallbackScore(t.Cells[v.Cell].Diff[v.Channel], f.Tables.Half, t.Members[v.Channel]))
+			return -float64(tables.OffsetScore(t.Cells[v.Cell].Diff[v.Channel], f.Tables.Half, t.Members[v.Channel]))
 		})
 	}
 	if pm, ok := model.(interface{ Parts(func(col int) int) }); ok {

@@ -61,10 +61,7 @@ func (s shareRule) Den() uint64 { return s.den }
 func (s shareRule) Nums(r []int, q []uint64) {
 	best, count := 0, 0
 	for i, x := range r {
-		v := 2 * x
-		if s.half != nil {
-			v += s.half[i]
-		}
+		v := tables.OffsetScore(x, s.half, i)
 		if count == 0 || v > best {
 			best, count = v, 1
 		} else if v == best {
@@ -73,10 +70,7 @@ func (s shareRule) Nums(r []int, q []uint64) {
 	}
 	share := s.den / uint64(count)
 	for i, x := range r {
-		v := 2 * x
-		if s.half != nil {
-			v += s.half[i]
-		}
+		v := tables.OffsetScore(x, s.half, i)
 		if v == best {
 			q[i] = share
 		} else {
