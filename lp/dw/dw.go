@@ -40,7 +40,9 @@ import (
 	"math"
 	"runtime"
 	"slices"
+	"sort"
 	"sync"
+	"sync/atomic"
 
 	"github.com/pickwise/pickwise/lp"
 	"github.com/pickwise/pickwise/lp/clp"
@@ -100,6 +102,18 @@ type Model struct {
 
 	nrows int // rows of the program
 
+	// The linking rows' entries again, column by column (rows in
+	// increasing order within a column), for pricing and row values:
+	// built from the rows when they change.
+	cstart []int   // column j has entries crow[cstart[j]:cstart[j+1]]
+	crow   []int32 // linking row of each entry
+	cval   []float64
+	// Pricing's column ranges, of about equal numbers of entries: chunk
+	// ch is columns chunkCol[ch] to chunkCol[ch+1], and its entries in
+	// linking row v are at rowCut[v*(priceChunks+1)+ch] up to the next.
+	chunkCol []int
+	rowCut   []int
+
 	cuts     []*cut // the master's cut rows, in order
 	master   *clp.Model
 	stale    bool // the master must be rebuilt before the next solve
@@ -112,7 +126,6 @@ type Model struct {
 	avg    []float64 // cost per column under the uniform prior (nil: to compute)
 	prefer func(col int) float64
 	pref   []float64 // prefer's score per column, as far as computed
-	xs     []float64 // scratch: a pure point's x
 	// base is the first point: the preferred columns', or the one priced
 	// at the uniform prior. Its cuts in every part stay in the master.
 	base       *point
@@ -121,6 +134,7 @@ type Model struct {
 	partOf func(col int) int
 	label  map[int]int32 // partOf's labels to part indices
 	bpart  []int32       // part of each block, as far as computed
+	pblock [][]int32     // the blocks of each part, in order
 	nparts int
 }
 
@@ -219,12 +233,16 @@ func (m *Model) AddRows(p *lp.Problem) error {
 			if len(m.lstart) == 0 {
 				m.lstart = append(m.lstart, 0)
 			}
+			at := len(m.lidx)
 			for e, j := range idx {
 				if j != 0 {
 					m.lidx = append(m.lidx, j)
 					m.lval = append(m.lval, val[e])
 				}
 			}
+			// In column order, so that pricing can split a row
+			// between column ranges.
+			sort.Stable(entries{m.lidx[at:], m.lval[at:]})
 			m.lstart = append(m.lstart, len(m.lidx))
 			m.lb = append(m.lb, up)
 			m.lrow = append(m.lrow, row)
@@ -322,64 +340,125 @@ func (m *Model) assignParts() {
 			m.label[lab] = p
 		}
 		m.bpart = append(m.bpart, p)
+		if int(p) == len(m.pblock) {
+			m.pblock = append(m.pblock, nil)
+		}
+		m.pblock[p] = append(m.pblock[p], int32(b))
 	}
 	m.nparts = max(1, len(m.label))
 }
 
+// transpose rebuilds the column-major copy of the linking rows when rows
+// or columns have been added since it was built.
+func (m *Model) transpose() {
+	if len(m.cstart) == m.ncols+1 && len(m.crow) == len(m.lidx) {
+		return
+	}
+	m.cstart = make([]int, m.ncols+1)
+	for _, j := range m.lidx {
+		m.cstart[j+1]++
+	}
+	for j := range m.ncols {
+		m.cstart[j+1] += m.cstart[j]
+	}
+	m.crow = make([]int32, len(m.lidx))
+	m.cval = make([]float64, len(m.lidx))
+	next := slices.Clone(m.cstart[:m.ncols])
+	for v := range m.nlink() {
+		for e := m.lstart[v]; e < m.lstart[v+1]; e++ {
+			j := m.lidx[e]
+			m.crow[next[j]] = int32(v)
+			m.cval[next[j]] = m.lval[e]
+			next[j]++
+		}
+	}
+	m.chunkCol = make([]int, priceChunks+1)
+	for ch := 1; ch < priceChunks; ch++ {
+		m.chunkCol[ch], _ = slices.BinarySearch(m.cstart[:m.ncols], len(m.crow)*ch/priceChunks)
+	}
+	m.chunkCol[priceChunks] = m.ncols
+	m.rowCut = make([]int, 0, m.nlink()*(priceChunks+1))
+	for v := range m.nlink() {
+		idx := m.lidx[m.lstart[v]:m.lstart[v+1]]
+		for _, col := range m.chunkCol {
+			e, _ := slices.BinarySearch(idx, int32(col))
+			m.rowCut = append(m.rowCut, m.lstart[v]+e)
+		}
+	}
+}
+
+// priceChunks is the number of column ranges that pricing shares out.
+const priceChunks = 16
+
+// entries sorts a row's entries by column.
+type entries struct {
+	idx []int32
+	val []float64
+}
+
+func (r entries) Len() int           { return len(r.idx) }
+func (r entries) Less(a, b int) bool { return r.idx[a] < r.idx[b] }
+func (r entries) Swap(a, b int) {
+	r.idx[a], r.idx[b] = r.idx[b], r.idx[a]
+	r.val[a], r.val[b] = r.val[b], r.val[a]
+}
+
 // rowValues returns, per part, a_v·x over the part's blocks of pure point
-// pt, for the linking rows from..nlink-1.
+// pt, for the linking rows from..nlink-1. It reads only the chosen
+// columns' entries.
 func (m *Model) rowValues(pt *point, from int) [][]float64 {
-	if len(m.xs) < m.ncols {
-		m.xs = make([]float64, m.ncols)
-	}
-	x := m.xs[:m.ncols]
-	for b, at := range pt.pick {
-		j := m.bcols[m.bstart[b]+int(at)]
-		x[j] = 1 / m.mult[j]
-	}
+	m.transpose()
 	k := m.nlink()
 	out := make([][]float64, m.nparts)
 	for p := range out {
 		out[p] = make([]float64, k-from)
 	}
-	parallelRange(k-from, func(lo, hi int) {
-		for v := from + lo; v < from+hi; v++ {
-			idx, val := m.lidx[m.lstart[v]:m.lstart[v+1]], m.lval[m.lstart[v]:m.lstart[v+1]]
-			if m.nparts == 1 {
-				var s float64
-				for e, j := range idx {
-					s += val[e] * x[j]
+	// Each part's sums run over its blocks in order, whichever goroutine
+	// computes them.
+	parallelChunks(m.nparts, 1, func(plo, phi int) {
+		for p := plo; p < phi; p++ {
+			r := out[p]
+			for _, b := range m.pblock[p] {
+				j := m.bcols[m.bstart[b]+int(pt.pick[b])]
+				xj := 1 / m.mult[j]
+				lo, hi := m.cstart[j], m.cstart[j+1]
+				if from > 0 {
+					lo += sort.Search(hi-lo, func(e int) bool { return int(m.crow[lo+e]) >= from })
 				}
-				out[0][v-from] = s
-				continue
-			}
-			for e, j := range idx {
-				if xj := x[j]; xj != 0 {
-					out[m.bpart[m.block[j]]][v-from] += val[e] * xj
+				rows, val := m.crow[lo:hi], m.cval[lo:hi]
+				val = val[:len(rows)]
+				for e, v := range rows {
+					r[int(v)-from] += val[e] * xj
 				}
 			}
 		}
 	})
-	for b, at := range pt.pick {
-		x[m.bcols[m.bstart[b]+int(at)]] = 0
-	}
 	return out
 }
 
-// parallelRange calls f on consecutive parts of [0, n), in parallel.
-func parallelRange(n int, f func(lo, hi int)) {
-	workers := min(runtime.GOMAXPROCS(0), max(1, n/16))
+// parallelChunks calls f on the chunks [lo, hi) of [0, n), at most chunk
+// long, from as many goroutines as there are processors. Callers write
+// only to their chunk's own places, so the result does not depend on how
+// the chunks were shared out.
+func parallelChunks(n, chunk int, f func(lo, hi int)) {
+	workers := min(runtime.GOMAXPROCS(0), (n+chunk-1)/chunk)
 	if workers <= 1 {
 		f(0, n)
 		return
 	}
+	var next atomic.Int64
 	var wg sync.WaitGroup
-	for w := range workers {
-		lo, hi := n*w/workers, n*(w+1)/workers
+	for range workers {
 		wg.Add(1)
 		go func() {
 			defer wg.Done()
-			f(lo, hi)
+			for {
+				lo := int(next.Add(int64(chunk))) - chunk
+				if lo >= n {
+					return
+				}
+				f(lo, min(n, lo+chunk))
+			}
 		}()
 	}
 	wg.Wait()
@@ -402,17 +481,37 @@ func (m *Model) price(pi []float64) (*point, float64) {
 		m.cost = make([]float64, m.ncols)
 	}
 	c := m.cost[:m.ncols]
-	clear(c)
 	val := 0.0
 	for v, w := range pi {
-		if w <= 0 {
-			continue
-		}
-		val -= w * m.lb[v]
-		for e := m.lstart[v]; e < m.lstart[v+1]; e++ {
-			c[m.lidx[e]] += w * m.lval[e]
+		if w > 0 {
+			val -= w * m.lb[v]
 		}
 	}
+	// Each column's cost sums its entries in row order, as one pass over
+	// the rows would: the same sums however the columns are shared out.
+	// Only the rows the prior weighs are read.
+	var rows []int
+	for v, w := range pi {
+		if w > 0 {
+			rows = append(rows, v)
+		}
+	}
+	m.transpose()
+	parallelChunks(priceChunks, 1, func(lo, hi int) {
+		for ch := lo; ch < hi; ch++ {
+			clear(c[m.chunkCol[ch]:m.chunkCol[ch+1]])
+			for _, v := range rows {
+				w := pi[v]
+				at := v * (priceChunks + 1)
+				idx := m.lidx[m.rowCut[at+ch]:m.rowCut[at+ch+1]]
+				val := m.lval[m.rowCut[at+ch]:m.rowCut[at+ch+1]]
+				val = val[:len(idx)]
+				for e, j := range idx {
+					c[j] += w * val[e]
+				}
+			}
+		}
+	})
 	// Of the columns that minimise a block's cost, pick the preferred
 	// one, or the one best on average over all linking rows: blocks that
 	// no row of the prior reaches then choose sensibly, not arbitrarily.
