@@ -66,11 +66,7 @@ func WorstCaseScreened(l *tables.Layout, rule Rule, d int) (Worst, error) {
 	if f, ok := rule.(Floater); ok {
 		fr = f.Float()
 	}
-	w, err := fast.WorstCase(l, fr, d)
-	if err != nil {
-		return Worst{}, err
-	}
-	cands, err := fast.Candidates(l, fr, d, screenTol*(1+w.Regret))
+	cands, err := fast.Candidates(l, fr, d, screenTol, screenTol)
 	if err != nil {
 		return Worst{}, err
 	}

@@ -153,20 +153,28 @@ func (e Evaluator) WorstCase(l *tables.Layout, rule tables.Rule, d int) (tables.
 
 // Candidates returns every configuration, over every subset of at least
 // two channels with sorted value gaps of at most d steps, whose float64
-// regret is at least the largest float64 regret minus tol (tol >= 0), in
-// the enumeration order of tables.Subsets and tables.Configurations; the
-// first of them with the largest regret is WorstCase's configuration.
+// regret is at least M - tol - rel*M, where M is the largest float64
+// regret (tol >= 0, 0 <= rel < 1), in the enumeration order of
+// tables.Subsets and tables.Configurations; the first of them with the
+// largest regret is WorstCase's configuration. It takes one pass over the
+// configurations.
 //
-// If every float64 regret is within e of the true regret, a tol of 2e
+// If every float64 regret is within e of the true regret, a margin of 2e
 // keeps every configuration that can reach the true worst case, so an
 // exact evaluation of the candidates alone finds it.
-func (e Evaluator) Candidates(l *tables.Layout, rule tables.Rule, d int, tol float64) ([][]int, error) {
+func (e Evaluator) Candidates(l *tables.Layout, rule tables.Rule, d int, tol, rel float64) ([][]int, error) {
 	if err := check(l, rule, d); err != nil {
 		return nil, err
 	}
 	if !(tol >= 0) || math.IsInf(tol, 1) {
 		return nil, fmt.Errorf("fast: tolerance %g is not a finite number >= 0", tol)
 	}
+	if !(rel >= 0 && rel < 1) {
+		return nil, fmt.Errorf("fast: relative tolerance %g is not in [0, 1)", rel)
+	}
+	// floor is the least regret kept while the largest is top; it rises
+	// with top, so a configuration below it stays below the final one.
+	floor := func(top float64) float64 { return top - tol - rel*top }
 	type cand struct {
 		sub int // index of the subset in tables.Subsets order
 		v   []int
@@ -178,7 +186,7 @@ func (e Evaluator) Candidates(l *tables.Layout, rule tables.Rule, d int, tol flo
 	prune := func() {
 		k := 0
 		for _, c := range list {
-			if c.reg >= top-tol {
+			if c.reg >= floor(top) {
 				list[k] = c
 				k++
 			}
@@ -190,7 +198,7 @@ func (e Evaluator) Candidates(l *tables.Layout, rule tables.Rule, d int, tol flo
 	var arrays work
 	for si, q := range subsets {
 		err := e.regrets(l, rule, q, d, &arrays, func(v []int, reg float64) {
-			if reg < top-tol {
+			if reg < floor(top) {
 				return
 			}
 			top = max(top, reg)
@@ -229,8 +237,8 @@ func WorstCase(l *tables.Layout, rule tables.Rule, d int) (tables.Worst, error) 
 }
 
 // Candidates calls Evaluator{}.Candidates.
-func Candidates(l *tables.Layout, rule tables.Rule, d int, tol float64) ([][]int, error) {
-	return Evaluator{}.Candidates(l, rule, d, tol)
+func Candidates(l *tables.Layout, rule tables.Rule, d int, tol, rel float64) ([][]int, error) {
+	return Evaluator{}.Candidates(l, rule, d, tol, rel)
 }
 
 // earlier reports whether configuration a comes before configuration b of

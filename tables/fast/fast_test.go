@@ -515,30 +515,31 @@ func TestCandidates(t *testing.T) {
 			return true
 		})
 	}
-	for _, tol := range []float64{0, 1e-9, 0.05, 0.3} {
-		cands, err := fast.Candidates(l, rule, l.D, tol)
+	for _, tc := range []struct{ tol, rel float64 }{{0, 0}, {1e-9, 0}, {0.05, 0}, {0.3, 0}, {0, 0.1}, {1e-9, 1e-9}, {0.02, 0.2}} {
+		tol, rel := tc.tol, tc.rel
+		cands, err := fast.Candidates(l, rule, l.D, tol, rel)
 		if err != nil {
 			t.Fatal(err)
 		}
 		want := map[string]bool{}
 		for i, k := range keys {
-			if regs[i] >= top-tol {
+			if regs[i] >= top-tol-rel*top {
 				want[k] = true
 			}
 		}
 		if len(cands) != len(want) {
-			t.Errorf("tol %g: %d candidates, want %d", tol, len(cands), len(want))
+			t.Errorf("tol %g, rel %g: %d candidates, want %d", tol, rel, len(cands), len(want))
 		}
 		for i, v := range cands {
 			if !want[key(v)] {
-				t.Errorf("tol %g: %v is not within tol of the worst case", tol, v)
+				t.Errorf("tol %g, rel %g: %v is not within the margin of the worst case", tol, rel, v)
 			}
 			if i > 0 && pos[key(cands[i-1])] >= pos[key(v)] {
-				t.Errorf("tol %g: candidates %v and %v out of enumeration order", tol, cands[i-1], v)
+				t.Errorf("tol %g, rel %g: candidates %v and %v out of enumeration order", tol, rel, cands[i-1], v)
 			}
 		}
 		if len(cands) == 0 || key(cands[0]) != key(w.Values) {
-			t.Errorf("tol %g: first candidate is not the worst case %v", tol, w.Values)
+			t.Errorf("tol %g, rel %g: first candidate is not the worst case %v", tol, rel, w.Values)
 		}
 	}
 
@@ -547,7 +548,7 @@ func TestCandidates(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	cands, err := fast.Candidates(s.Layout, s.Tables, s.Layout.D, 1e-9)
+	cands, err := fast.Candidates(s.Layout, s.Tables, s.Layout.D, 1e-9, 0)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -591,8 +592,10 @@ func TestErrors(t *testing.T) {
 		{"one channel", func() error { return fast.Regrets(l, tables.Greedy{}, tables.SetOf(1), 3, func([]int, float64) {}) }},
 		{"channel out of range", func() error { return fast.Regrets(l, tables.Greedy{}, tables.SetOf(0, 3), 3, func([]int, float64) {}) }},
 		{"tiny budget", func() error { _, err := fast.Evaluator{MaxBytes: 100}.WorstCase(l, tables.Greedy{}, 3); return err }},
-		{"negative tolerance", func() error { _, err := fast.Candidates(l, tables.Greedy{}, 3, -1); return err }},
-		{"NaN tolerance", func() error { _, err := fast.Candidates(l, tables.Greedy{}, 3, math.NaN()); return err }},
+		{"negative tolerance", func() error { _, err := fast.Candidates(l, tables.Greedy{}, 3, -1, 0); return err }},
+		{"NaN tolerance", func() error { _, err := fast.Candidates(l, tables.Greedy{}, 3, math.NaN(), 0); return err }},
+		{"negative relative tolerance", func() error { _, err := fast.Candidates(l, tables.Greedy{}, 3, 0, -0.1); return err }},
+		{"relative tolerance 1", func() error { _, err := fast.Candidates(l, tables.Greedy{}, 3, 0, 1); return err }},
 		{"rule picks a far channel", func() error {
 			return fast.Regrets(l, farRule{}, tables.SetOf(1, 2), 3, func([]int, float64) {})
 		}},
