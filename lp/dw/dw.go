@@ -423,7 +423,10 @@ func (m *Model) rowValues(pt *point, from int) [][]float64 {
 				xj := 1 / m.mult[j]
 				lo, hi := m.cstart[j], m.cstart[j+1]
 				if from > 0 {
-					lo += sort.Search(hi-lo, func(e int) bool { return int(m.crow[lo+e]) >= from })
+					// The rows from on are the column's last
+					// entries, and few.
+					for lo = hi; lo > m.cstart[j] && int(m.crow[lo-1]) >= from; lo-- {
+					}
 				}
 				rows, val := m.crow[lo:hi], m.cval[lo:hi]
 				val = val[:len(rows)]
