@@ -118,9 +118,6 @@ type Model struct {
 	master   *clp.Model
 	stale    bool // the master must be rebuilt before the next solve
 	rebuilds int  // masters built so far
-	// shortStops counts the master solves that ended below the best
-	// lower bound and were resumed.
-	shortStops int
 
 	center []float64 // the prior of the best lower bound, per linking row
 	bestLB float64
@@ -791,7 +788,6 @@ func (m *Model) Solve(ctx context.Context) (*lp.Solution, error) {
 		// optimum (three channels of normal noise: 5 of 21 rounds).
 		// The dual simplex from the basis reached gets through.
 		for try := 0; try < 3 && m.bestLB-sigma > 1e-9*math.Max(1, math.Abs(sigma)); try++ {
-			m.shortStops++
 			if sol, err = m.master.Solve(ctx); err != nil {
 				return nil, fmt.Errorf("dw: master (%d cuts): %w", len(m.cuts), err)
 			}
