@@ -40,7 +40,6 @@ import (
 	"math"
 	"runtime"
 	"slices"
-	"sort"
 	"sync"
 	"sync/atomic"
 
@@ -93,26 +92,22 @@ type Model struct {
 	bcols  []int32 // columns of the blocks
 	brow   []int   // program row of each block
 
-	// linking rows: entries without t, right-hand side, program row.
-	lstart []int
-	lidx   []int32
-	lval   []float64
-	lb     []float64
-	lrow   []int
+	// linking rows: right-hand side, program row.
+	lb   []float64
+	lrow []int
 
 	nrows int // rows of the program
 
-	// The linking rows' entries again, column by column (rows in
-	// increasing order within a column), for pricing and row values:
-	// built from the rows when they change.
-	cstart []int   // column j has entries crow[cstart[j]:cstart[j+1]]
-	crow   []int32 // linking row of each entry
+	// The linking rows' entries (without t), column by column: column j
+	// has entries crow[cstart[j]:cstart[j+1]], in increasing row order.
+	// Rows added since the last merge wait in pstart, pidx and pval, row
+	// by row (see merge).
+	cstart []int
+	crow   []int32
 	cval   []float64
-	// Pricing's column ranges, of about equal numbers of entries: chunk
-	// ch is columns chunkCol[ch] to chunkCol[ch+1], and its entries in
-	// linking row v are at rowCut[v*(priceChunks+1)+ch] up to the next.
-	chunkCol []int
-	rowCut   []int
+	pstart []int
+	pidx   []int32
+	pval   []float64
 
 	cuts     []*cut // the master's cut rows, in order
 	master   *clp.Model
@@ -230,20 +225,16 @@ func (m *Model) AddRows(p *lp.Problem) error {
 			if !math.IsInf(lo, -1) || math.IsInf(up, 0) || math.IsNaN(up) {
 				return fmt.Errorf("dw: linking row %d has bounds [%g, %g]; want (-Inf, finite]", row, lo, up)
 			}
-			if len(m.lstart) == 0 {
-				m.lstart = append(m.lstart, 0)
+			if len(m.pstart) == 0 {
+				m.pstart = append(m.pstart, 0)
 			}
-			at := len(m.lidx)
 			for e, j := range idx {
 				if j != 0 {
-					m.lidx = append(m.lidx, j)
-					m.lval = append(m.lval, val[e])
+					m.pidx = append(m.pidx, j)
+					m.pval = append(m.pval, val[e])
 				}
 			}
-			// In column order, so that pricing can split a row
-			// between column ranges.
-			sort.Stable(entries{m.lidx[at:], m.lval[at:]})
-			m.lstart = append(m.lstart, len(m.lidx))
+			m.pstart = append(m.pstart, len(m.pidx))
 			m.lb = append(m.lb, up)
 			m.lrow = append(m.lrow, row)
 			continue
@@ -348,66 +339,53 @@ func (m *Model) assignParts() {
 	m.nparts = max(1, len(m.label))
 }
 
-// transpose rebuilds the column-major copy of the linking rows when rows
-// or columns have been added since it was built.
-func (m *Model) transpose() {
-	if len(m.cstart) == m.ncols+1 && len(m.crow) == len(m.lidx) {
+// merge adds the rows waiting in pstart, pidx and pval to the
+// column-major entries, and extends cstart to every column. The rows come
+// after every merged row, so each column's new entries go at its end.
+func (m *Model) merge() {
+	if len(m.pstart) <= 1 && len(m.cstart) == m.ncols+1 {
 		return
 	}
-	m.cstart = make([]int, m.ncols+1)
-	for _, j := range m.lidx {
-		m.cstart[j+1]++
+	old := max(0, len(m.cstart)-1) // columns merged before
+	cstart := make([]int, m.ncols+1)
+	for j := range old {
+		cstart[j+1] = m.cstart[j+1] - m.cstart[j]
+	}
+	for _, j := range m.pidx {
+		cstart[j+1]++
 	}
 	for j := range m.ncols {
-		m.cstart[j+1] += m.cstart[j]
+		cstart[j+1] += cstart[j]
 	}
-	m.crow = make([]int32, len(m.lidx))
-	m.cval = make([]float64, len(m.lidx))
-	next := slices.Clone(m.cstart[:m.ncols])
-	for v := range m.nlink() {
-		for e := m.lstart[v]; e < m.lstart[v+1]; e++ {
-			j := m.lidx[e]
-			m.crow[next[j]] = int32(v)
-			m.cval[next[j]] = m.lval[e]
+	crow := make([]int32, cstart[m.ncols])
+	cval := make([]float64, cstart[m.ncols])
+	next := make([]int, m.ncols)
+	for j := range m.ncols {
+		next[j] = cstart[j]
+		if j < old {
+			next[j] += copy(crow[cstart[j]:], m.crow[m.cstart[j]:m.cstart[j+1]])
+			copy(cval[cstart[j]:], m.cval[m.cstart[j]:m.cstart[j+1]])
+		}
+	}
+	waiting := max(0, len(m.pstart)-1)
+	first := m.nlink() - waiting // row of the first waiting row
+	for k := range waiting {
+		for e := m.pstart[k]; e < m.pstart[k+1]; e++ {
+			j := m.pidx[e]
+			crow[next[j]] = int32(first + k)
+			cval[next[j]] = m.pval[e]
 			next[j]++
 		}
 	}
-	m.chunkCol = make([]int, priceChunks+1)
-	for ch := 1; ch < priceChunks; ch++ {
-		m.chunkCol[ch], _ = slices.BinarySearch(m.cstart[:m.ncols], len(m.crow)*ch/priceChunks)
-	}
-	m.chunkCol[priceChunks] = m.ncols
-	m.rowCut = make([]int, 0, m.nlink()*(priceChunks+1))
-	for v := range m.nlink() {
-		idx := m.lidx[m.lstart[v]:m.lstart[v+1]]
-		for _, col := range m.chunkCol {
-			e, _ := slices.BinarySearch(idx, int32(col))
-			m.rowCut = append(m.rowCut, m.lstart[v]+e)
-		}
-	}
-}
-
-// priceChunks is the number of column ranges that pricing shares out.
-const priceChunks = 16
-
-// entries sorts a row's entries by column.
-type entries struct {
-	idx []int32
-	val []float64
-}
-
-func (r entries) Len() int           { return len(r.idx) }
-func (r entries) Less(a, b int) bool { return r.idx[a] < r.idx[b] }
-func (r entries) Swap(a, b int) {
-	r.idx[a], r.idx[b] = r.idx[b], r.idx[a]
-	r.val[a], r.val[b] = r.val[b], r.val[a]
+	m.cstart, m.crow, m.cval = cstart, crow, cval
+	m.pstart, m.pidx, m.pval = nil, nil, nil
 }
 
 // rowValues returns, per part, a_v·x over the part's blocks of pure point
 // pt, for the linking rows from..nlink-1. It reads only the chosen
 // columns' entries.
 func (m *Model) rowValues(pt *point, from int) [][]float64 {
-	m.transpose()
+	m.merge()
 	k := m.nlink()
 	out := make([][]float64, m.nparts)
 	for p := range out {
@@ -492,27 +470,21 @@ func (m *Model) price(pi []float64) (*point, float64) {
 	}
 	// Each column's cost sums its entries in row order, as one pass over
 	// the rows would: the same sums however the columns are shared out.
-	// Only the rows the prior weighs are read.
-	var rows []int
-	for v, w := range pi {
-		if w > 0 {
-			rows = append(rows, v)
-		}
+	// (Rows the prior does not weigh add zeros.)
+	w := slices.Clone(pi)
+	for v := range w {
+		w[v] = math.Max(w[v], 0)
 	}
-	m.transpose()
-	parallelChunks(priceChunks, 1, func(lo, hi int) {
-		for ch := lo; ch < hi; ch++ {
-			clear(c[m.chunkCol[ch]:m.chunkCol[ch+1]])
-			for _, v := range rows {
-				w := pi[v]
-				at := v * (priceChunks + 1)
-				idx := m.lidx[m.rowCut[at+ch]:m.rowCut[at+ch+1]]
-				val := m.lval[m.rowCut[at+ch]:m.rowCut[at+ch+1]]
-				val = val[:len(idx)]
-				for e, j := range idx {
-					c[j] += w * val[e]
-				}
+	m.merge()
+	parallelChunks(m.ncols, 4096, func(lo, hi int) {
+		for j := lo; j < hi; j++ {
+			rows, val := m.crow[m.cstart[j]:m.cstart[j+1]], m.cval[m.cstart[j]:m.cstart[j+1]]
+			val = val[:len(rows)]
+			var s float64
+			for e, v := range rows {
+				s += w[v] * val[e]
 			}
+			c[j] = s
 		}
 	})
 	// Of the columns that minimise a block's cost, pick the preferred
@@ -584,8 +556,11 @@ func (m *Model) scores() {
 func (m *Model) average() {
 	m.avg = make([]float64, m.ncols)
 	w := 1 / float64(m.nlink())
-	for e, j := range m.lidx {
-		m.avg[j] += w * m.lval[e]
+	m.merge()
+	for j := range m.ncols {
+		for e := m.cstart[j]; e < m.cstart[j+1]; e++ {
+			m.avg[j] += w * m.cval[e]
+		}
 	}
 }
 
