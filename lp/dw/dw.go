@@ -395,6 +395,9 @@ func (m *Model) rowValues(pt *point, from int) [][]float64 {
 	// computes them.
 	parallelChunks(m.nparts, 1, func(plo, phi int) {
 		for p := plo; p < phi; p++ {
+			if p >= len(m.pblock) {
+				continue // a program without blocks
+			}
 			r := out[p]
 			for _, b := range m.pblock[p] {
 				j := m.bcols[m.bstart[b]+int(pt.pick[b])]

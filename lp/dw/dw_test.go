@@ -385,3 +385,24 @@ func TestProcessors(t *testing.T) {
 		})
 	}
 }
+
+// TestNoBlocks: a program of t alone (every linking row is t >= -b) has
+// the largest -b as its optimum.
+func TestNoBlocks(t *testing.T) {
+	q := &lp.Problem{}
+	q.AddCol(1, 0, math.Inf(1))
+	q.AddRow([]int{0}, []float64{-1}, math.Inf(-1), -2)
+	q.AddRow([]int{0}, []float64{-1}, math.Inf(-1), -3.5)
+	m, err := dw.New(q)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer m.Close()
+	sol, err := m.Solve(context.Background())
+	if err != nil {
+		t.Fatal(err)
+	}
+	if math.Abs(sol.Objective-3.5) > 1e-9 {
+		t.Errorf("optimum %g, want 3.5", sol.Objective)
+	}
+}
