@@ -466,30 +466,14 @@ func (m *Model) price(pi []float64) (*point, float64) {
 	}
 	c := m.cost[:m.ncols]
 	val := 0.0
-	for v, w := range pi {
-		if w > 0 {
-			val -= w * m.lb[v]
+	w := make([]float64, len(pi))
+	for v, x := range pi {
+		if x > 0 {
+			val -= x * m.lb[v]
+			w[v] = x
 		}
 	}
-	// Each column's cost sums its entries in row order, as one pass over
-	// the rows would: the same sums however the columns are shared out.
-	// (Rows the prior does not weigh add zeros.)
-	w := slices.Clone(pi)
-	for v := range w {
-		w[v] = math.Max(w[v], 0)
-	}
-	m.merge()
-	parallelChunks(m.ncols, 4096, func(lo, hi int) {
-		for j := lo; j < hi; j++ {
-			rows, val := m.crow[m.cstart[j]:m.cstart[j+1]], m.cval[m.cstart[j]:m.cstart[j+1]]
-			val = val[:len(rows)]
-			var s float64
-			for e, v := range rows {
-				s += w[v] * val[e]
-			}
-			c[j] = s
-		}
-	})
+	m.columnCosts(w, c)
 	// Of the columns that minimise a block's cost, pick the preferred
 	// one, or the one best on average over all linking rows: blocks that
 	// no row of the prior reaches then choose sensibly, not arbitrarily.
@@ -557,14 +541,31 @@ func (m *Model) scores() {
 // average sets avg to the columns' costs under the uniform prior on the
 // linking rows.
 func (m *Model) average() {
-	m.avg = make([]float64, m.ncols)
-	w := 1 / float64(m.nlink())
-	m.merge()
-	for j := range m.ncols {
-		for e := m.cstart[j]; e < m.cstart[j+1]; e++ {
-			m.avg[j] += w * m.cval[e]
-		}
+	w := make([]float64, m.nlink())
+	for v := range w {
+		w[v] = 1 / float64(len(w))
 	}
+	m.avg = make([]float64, m.ncols)
+	m.columnCosts(w, m.avg)
+}
+
+// columnCosts sets c[j] to Σ_v w[v] a_vj for every column j (w >= 0),
+// each column's entries summed in row order, as one pass over the rows
+// would: the same sums however the columns are shared out between the
+// processors. (Rows of weight 0 add zeros.)
+func (m *Model) columnCosts(w, c []float64) {
+	m.merge()
+	parallelChunks(m.ncols, 4096, func(lo, hi int) {
+		for j := lo; j < hi; j++ {
+			rows, val := m.crow[m.cstart[j]:m.cstart[j+1]], m.cval[m.cstart[j]:m.cstart[j+1]]
+			val = val[:len(rows)]
+			var s float64
+			for e, v := range rows {
+				s += w[v] * val[e]
+			}
+			c[j] = s
+		}
+	})
 }
 
 // Master columns: σ, then η_p per part, then π_v per linking row. Rows:
