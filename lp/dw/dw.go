@@ -40,6 +40,7 @@ import (
 	"math"
 	"runtime"
 	"slices"
+	"sort"
 	"sync"
 	"sync/atomic"
 
@@ -108,6 +109,12 @@ type Model struct {
 	pstart []int
 	pidx   []int32
 	pval   []float64
+	// The merged rows again, row by row: row v has entries
+	// rcol[rstart[v]:rstart[v+1]], in increasing column order. Pricing
+	// reads them when the prior weighs few rows (see columnCosts).
+	rstart []int
+	rcol   []int32
+	rval   []float64
 
 	cuts     []*cut // the master's cut rows, in order
 	master   *clp.Model
@@ -369,16 +376,37 @@ func (m *Model) merge() {
 	}
 	waiting := max(0, len(m.pstart)-1)
 	first := m.nlink() - waiting // row of the first waiting row
+	if len(m.rstart) == 0 {
+		m.rstart = append(m.rstart, 0)
+	}
 	for k := range waiting {
+		at := len(m.rcol)
 		for e := m.pstart[k]; e < m.pstart[k+1]; e++ {
 			j := m.pidx[e]
 			crow[next[j]] = int32(first + k)
 			cval[next[j]] = m.pval[e]
 			next[j]++
+			m.rcol = append(m.rcol, j)
+			m.rval = append(m.rval, m.pval[e])
 		}
+		sort.Sort(byColumn{m.rcol[at:], m.rval[at:]})
+		m.rstart = append(m.rstart, len(m.rcol))
 	}
 	m.cstart, m.crow, m.cval = cstart, crow, cval
 	m.pstart, m.pidx, m.pval = nil, nil, nil
+}
+
+// byColumn sorts a row's entries by column.
+type byColumn struct {
+	col []int32
+	val []float64
+}
+
+func (r byColumn) Len() int           { return len(r.col) }
+func (r byColumn) Less(a, b int) bool { return r.col[a] < r.col[b] }
+func (r byColumn) Swap(a, b int) {
+	r.col[a], r.col[b] = r.col[b], r.col[a]
+	r.val[a], r.val[b] = r.val[b], r.val[a]
 }
 
 // rowValues returns, per part, a_v·x over the part's blocks of pure point
@@ -553,8 +581,32 @@ func (m *Model) average() {
 // each column's entries summed in row order, as one pass over the rows
 // would: the same sums however the columns are shared out between the
 // processors. (Rows of weight 0 add zeros.)
+//
+// A prior whose rows hold less than two thirds of the entries is read row
+// by row: only the weighed rows' entries, added to each column in row
+// order as well, so the sums are the same bits as a pass over every row's
+// entries gives (a row of weight 0 adds zeros). (The master's priors weigh
+// a tenth of the rows or less, but the longest: four channels with
+// 15-point pmfs, 7% of the rows with 37% of the entries.)
 func (m *Model) columnCosts(w, c []float64) {
 	m.merge()
+	weighed := 0
+	var support []int
+	for v, x := range w {
+		if x != 0 {
+			support = append(support, v)
+			weighed += m.rstart[v+1] - m.rstart[v]
+		}
+	}
+	if 3*weighed < 2*len(m.rcol) {
+		m.costsByRow(w, support, c)
+		return
+	}
+	m.costsByColumn(w, c)
+}
+
+// costsByColumn is columnCosts reading every entry, column by column.
+func (m *Model) costsByColumn(w, c []float64) {
 	parallelChunks(m.ncols, 4096, func(lo, hi int) {
 		for j := lo; j < hi; j++ {
 			rows, val := m.crow[m.cstart[j]:m.cstart[j+1]], m.cval[m.cstart[j]:m.cstart[j+1]]
@@ -564,6 +616,22 @@ func (m *Model) columnCosts(w, c []float64) {
 				s += w[v] * val[e]
 			}
 			c[j] = s
+		}
+	})
+}
+
+// costsByRow is columnCosts reading only the rows of support (the rows
+// of nonzero weight, in increasing order), row by row.
+func (m *Model) costsByRow(w []float64, support []int, c []float64) {
+	parallelChunks(m.ncols, 4096, func(lo, hi int) {
+		clear(c[lo:hi])
+		for _, v := range support {
+			cols, val := m.rcol[m.rstart[v]:m.rstart[v+1]], m.rval[m.rstart[v]:m.rstart[v+1]]
+			e, _ := slices.BinarySearch(cols, int32(lo))
+			wv := w[v]
+			for ; e < len(cols) && int(cols[e]) < hi; e++ {
+				c[cols[e]] += wv * val[e]
+			}
 		}
 	})
 }

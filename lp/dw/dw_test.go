@@ -406,3 +406,85 @@ func TestNoBlocks(t *testing.T) {
 		t.Errorf("optimum %g, want 3.5", sol.Objective)
 	}
 }
+
+// TestCostsByRow: pricing reads a prior that weighs few rows row by row,
+// and must get the same bits as the pass over every column's entries,
+// whatever the order of the rows' entries and with rows merged in two
+// batches.
+func TestCostsByRow(t *testing.T) {
+	rng := rand.New(rand.NewPCG(8, 13))
+	const nb, nl = 5000, 60
+	p := randomProgram(rng, nb, nl, func(k int) int {
+		if k < nl/2 {
+			return nb / 2
+		}
+		return nb
+	})
+	for _, r := range p.rows {
+		for e := range r.val {
+			if rng.IntN(4) == 0 {
+				r.val[e] = -r.val[e]
+			}
+		}
+		rng.Shuffle(len(r.idx), func(a, b int) {
+			r.idx[a], r.idx[b] = r.idx[b], r.idx[a]
+			r.val[a], r.val[b] = r.val[b], r.val[a]
+		})
+	}
+	var half []int
+	for b := range nb / 2 {
+		half = append(half, b)
+	}
+	first := p.blocks[nb/2][0] // the first column of the second half
+	m, err := dw.New(p.problem(0, first, p.rows[:nl/2], half))
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer m.Close()
+	for _, tc := range []struct {
+		name string
+		rows int // rows loaded before the costs are read
+		keep int // one row in keep has weight
+	}{
+		{"first batch, one row in ten", nl / 2, 10},
+		{"both batches, one row in ten", nl, 10},
+		{"both batches, one row in three", nl, 3},
+		{"both batches, every row", nl, 1},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			if tc.rows > dw.NumLinkingRows(m) {
+				var rest []int
+				for b := nb / 2; b < nb; b++ {
+					rest = append(rest, b)
+				}
+				q := p.problem(first, p.ncols, p.rows[nl/2:], rest)
+				if err := m.AddColumns(q.ColLo, q.ColUp, q.Obj); err != nil {
+					t.Fatal(err)
+				}
+				if err := m.AddRows(q); err != nil {
+					t.Fatal(err)
+				}
+			}
+			w := make([]float64, tc.rows)
+			for v := range w {
+				if rng.IntN(tc.keep) == 0 {
+					w[v] = rng.Float64()
+				}
+			}
+			byCol := dw.ColumnCosts(m, w, false)
+			byRow := dw.ColumnCosts(m, w, true)
+			nonzero := 0
+			for j := range byCol {
+				if math.Float64bits(byRow[j]) != math.Float64bits(byCol[j]) {
+					t.Fatalf("column %d: %.17g row by row, %.17g column by column", j, byRow[j], byCol[j])
+				}
+				if byCol[j] != 0 {
+					nonzero++
+				}
+			}
+			if nonzero == 0 {
+				t.Fatal("every cost is zero: the test reads nothing")
+			}
+		})
+	}
+}
