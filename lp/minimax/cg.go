@@ -272,14 +272,11 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 			size := sizeOf(q)
 			list := make([]scored, 0, size)
 			var also []scored // by prev
-			err := opt.Evaluator.Regrets(l, rule, q, l.D, func(v []int, reg float64) {
-				at := len(regs)
-				regs = append(regs, reg)
-				top = math.Max(top, reg)
-				above := prev != nil && prev[at] > threshold
-				if reg <= threshold && !above {
-					return
-				}
+			from := len(regs)
+			var err error
+			regs, err = opt.Evaluator.Scan(l, rule, q, l.D, regs, func(at int, reg float64) bool {
+				return reg > threshold || (prev != nil && prev[at] > threshold)
+			}, func(at int, v []int, reg float64) {
 				if inSet[keyOf(canon(v))] {
 					return
 				}
@@ -287,12 +284,15 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 					count++
 					list = keep(list, size, v, reg)
 				}
-				if above {
+				if prev != nil && prev[at] > threshold {
 					also = keep(also, max(1, size/2), v, prev[at])
 				}
 			})
 			if err != nil {
 				return nil, 0, 0, err
+			}
+			for _, reg := range regs[from:] {
+				top = math.Max(top, reg)
 			}
 			out = append(out, list...)
 			out = append(out, also...)

@@ -7,6 +7,7 @@ import (
 	"math/big"
 	"math/rand/v2"
 	"runtime"
+	"slices"
 	"sync"
 	"testing"
 
@@ -666,4 +667,65 @@ func TestLargeNormal(t *testing.T) {
 		}
 	}
 	t.Logf("%d configurations; worst %.12g at %v; %d checked directly, largest difference %.3g absolute, %.3g relative", n, top, worst, len(sample), absErr, relErr)
+}
+
+// TestScan checks Scan against Regrets: the same regrets in the same
+// order, and fn called exactly at the configurations pick chooses, with
+// their values, in tiles and on one goroutine as well as on all.
+func TestScan(t *testing.T) {
+	rng := rand.New(rand.NewPCG(31, 7))
+	l := layout(t, randomModel(t, rng, 4, 2, 4))
+	rule := randomTable(l, rng, l.D)
+	_, regs := collect(t, fast.Evaluator{}, l, rule, l.D)
+	// A threshold with about one configuration in fifty above it, and
+	// every seventh configuration whatever its regret.
+	sorted := slices.Sorted(slices.Values(regs))
+	threshold := sorted[len(sorted)*49/50]
+	pick := func(at int, reg float64) bool { return reg > threshold || at%7 == 0 }
+	for _, tc := range []struct {
+		name string
+		e    fast.Evaluator
+	}{
+		{"one tile, every core", fast.Evaluator{}},
+		{"tiles, one goroutine", fast.Evaluator{MaxBytes: 1 << 16, Workers: 1}},
+		{"tiles, every core", fast.Evaluator{MaxBytes: 1 << 16}},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			// Tiles change the order: compare with Regrets in the
+			// same tiles.
+			wantKeys, wantRegs := collect(t, tc.e, l, rule, l.D)
+			var got []float64
+			var calls []int
+			for _, q := range tables.Subsets(l.N()) {
+				var err error
+				got, err = tc.e.Scan(l, rule, q, l.D, got, pick, func(at int, v []int, reg float64) {
+					if k := key(v); k != wantKeys[at] || reg != wantRegs[at] {
+						t.Fatalf("call at %d: %s regret %.17g, want %s %.17g", at, k, reg, wantKeys[at], wantRegs[at])
+					}
+					if len(calls) > 0 && at <= calls[len(calls)-1] {
+						t.Fatalf("call at %d after a call at %d", at, calls[len(calls)-1])
+					}
+					calls = append(calls, at)
+				})
+				if err != nil {
+					t.Fatal(err)
+				}
+			}
+			if !slices.Equal(got, wantRegs) {
+				t.Fatalf("%d regrets, want %d, or they differ", len(got), len(wantRegs))
+			}
+			var want []int
+			for at, reg := range wantRegs {
+				if pick(at, reg) {
+					want = append(want, at)
+				}
+			}
+			if !slices.Equal(calls, want) {
+				t.Fatalf("fn called at %d configurations, want %d", len(calls), len(want))
+			}
+			if len(want) == 0 || len(want) == len(wantRegs) {
+				t.Fatalf("pick chose %d of %d configurations: the test checks nothing", len(want), len(wantRegs))
+			}
+		})
+	}
 }

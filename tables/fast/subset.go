@@ -3,6 +3,7 @@ package fast
 import (
 	"fmt"
 	"math"
+	"slices"
 	"sync"
 	"sync/atomic"
 
@@ -236,6 +237,34 @@ func (s *subset) bytes() float64 {
 
 // run evaluates every tile and reports the configurations in it.
 func (s *subset) run(fn func(v []int, regret float64)) error {
+	v := s.farVector()
+	return s.tiles(func(ulo, ext []int, cfg *spans) {
+		s.report(ulo, ext, cfg, v, fn)
+	})
+}
+
+// scan evaluates every tile, appends the regrets of its configurations to
+// regs and calls fn for those that pick chooses (see Evaluator.Scan).
+func (s *subset) scan(regs []float64, pick func(at int, regret float64) bool, fn func(at int, v []int, regret float64)) ([]float64, error) {
+	v := s.farVector()
+	err := s.tiles(func(ulo, ext []int, cfg *spans) {
+		regs = s.collect(regs, ulo, ext, cfg, v, pick, fn)
+	})
+	return regs, err
+}
+
+// farVector returns a vector of the layout's length at tables.Far.
+func (s *subset) farVector() []int {
+	v := make([]int, s.l.N())
+	for c := range v {
+		v[c] = tables.Far
+	}
+	return v
+}
+
+// tiles evaluates every tile and calls done with each that holds
+// configurations, its regrets in s.r.
+func (s *subset) tiles(done func(ulo, ext []int, cfg *spans)) error {
 	k := s.k
 	ntiles := make([]int, k)
 	for a := range ntiles {
@@ -253,10 +282,6 @@ func (s *subset) run(fn func(v []int, regret float64)) error {
 	t := make([]int, k)
 	ulo := make([]int, k)
 	ext := make([]int, k)
-	v := make([]int, s.l.N())
-	for c := range v {
-		v[c] = tables.Far
-	}
 	for {
 		for a := range t {
 			ulo[a] = -s.span + t[a]*s.tile[a]
@@ -267,7 +292,7 @@ func (s *subset) run(fn func(v []int, regret float64)) error {
 			return err
 		}
 		if cfg != nil {
-			s.report(ulo, ext, cfg, v, fn)
+			done(ulo, ext, cfg)
 		}
 		if !next(t, ntiles) {
 			return nil
@@ -1049,19 +1074,87 @@ func (s *subset) report(ulo, ext []int, cfg *spans, v []int, fn func(v []int, re
 		if jlo > jhi {
 			continue
 		}
-		fixed := 0 // the lowest of u_0 = 0 and the differences fixed along the row
-		for a, x := range idx {
-			fixed = min(fixed, ulo[a]+x)
-		}
+		fixed := s.rowLowest(ulo, idx)
 		for j := jlo; j <= jhi; j++ {
-			ul := ulo[k-1] + j
-			lowest := min(fixed, ul)
-			v[s.mem[0]] = -lowest
-			for a, x := range idx {
-				v[s.mem[a+1]] = ulo[a] + x - lowest
-			}
-			v[s.mem[k]] = ul - lowest
+			s.config(v, ulo, idx, fixed, j)
 			fn(v, s.r[row*last+j])
 		}
 	}
+}
+
+// rowLowest returns the lowest of u_0 = 0 and the value differences
+// fixed along the row idx of a tile with lowest corner ulo.
+func (s *subset) rowLowest(ulo, idx []int) int {
+	fixed := 0
+	for a, x := range idx {
+		fixed = min(fixed, ulo[a]+x)
+	}
+	return fixed
+}
+
+// config sets v to the configuration at index j of row idx of a tile
+// with lowest corner ulo (fixed from rowLowest): its values, lowest 0, in
+// the members' places.
+func (s *subset) config(v, ulo, idx []int, fixed, j int) {
+	k := s.k
+	ul := ulo[k-1] + j
+	lowest := min(fixed, ul)
+	v[s.mem[0]] = -lowest
+	for a, x := range idx {
+		v[s.mem[a+1]] = ulo[a] + x - lowest
+	}
+	v[s.mem[k]] = ul - lowest
+}
+
+// collect appends the regrets of the configurations of a tile (the spans
+// cfg), in the order of report, to regs, and calls fn, in that order, for
+// those that pick chooses. The regrets are copied and pick is called from
+// s.workers goroutines; fn from the calling one.
+func (s *subset) collect(regs []float64, ulo, ext []int, cfg *spans, v []int, pick func(at int, regret float64) bool, fn func(at int, v []int, regret float64)) []float64 {
+	k := s.k
+	last := ext[k-1]
+	nrows := len(cfg.lo)
+	off := make([]int, nrows+1) // the first configuration of each row, in the tile
+	for row := range nrows {
+		off[row+1] = off[row] + max(0, cfg.hi[row]-cfg.lo[row]+1)
+	}
+	base := len(regs)
+	regs = slices.Grow(regs, off[nrows])[:base+off[nrows]]
+	picked := make([]bool, nrows)
+	parallel(s.workers, nrows, func(_, lo, hi int) {
+		for row := lo; row < hi; row++ {
+			jlo, jhi := cfg.lo[row], cfg.hi[row]
+			if jlo > jhi {
+				continue
+			}
+			src := s.r[row*last+jlo : row*last+jhi+1]
+			at := base + off[row]
+			copy(regs[at:at+len(src)], src)
+			for e, x := range src {
+				if pick(at+e, x) {
+					picked[row] = true
+					break
+				}
+			}
+		}
+	})
+	idx := make([]int, k-1)
+	for row := range nrows {
+		if row > 0 {
+			next(idx, cfg.ext)
+		}
+		if !picked[row] {
+			continue
+		}
+		fixed := s.rowLowest(ulo, idx)
+		jlo := cfg.lo[row]
+		for j := jlo; j <= cfg.hi[row]; j++ {
+			at := base + off[row] + j - jlo
+			if x := regs[at]; pick(at, x) {
+				s.config(v, ulo, idx, fixed, j)
+				fn(at, v, x)
+			}
+		}
+	}
+	return regs
 }
