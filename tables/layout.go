@@ -133,49 +133,52 @@ func SetOf(ch ...int) Set {
 
 // TopGroup returns the top group of a reading vector: the channels joined to
 // the highest reading by consecutive gaps (of the sorted readings) of at
-// most T. Readings at Far never join. order is scratch space of length n (or
-// nil).
-func (l *Layout) TopGroup(r []int, order []int) Set {
-	n := len(r)
-	if len(order) < n {
-		order = make([]int, n)
-	}
-	order = order[:n]
-	for i := range order {
-		order[i] = i
-	}
-	// Insertion sort by reading, descending: n is small.
-	for i := 1; i < n; i++ {
-		for j := i; j > 0 && r[order[j]] > r[order[j-1]]; j-- {
-			order[j], order[j-1] = order[j-1], order[j]
+// most T. Readings at Far never join.
+func (l *Layout) TopGroup(r []int) Set {
+	// The group is every reading at or above the first gap of more than
+	// T below the highest: grow it from the highest reading, adding the
+	// readings within T of its lowest, until none is.
+	top := 0
+	for i, x := range r {
+		if x > r[top] {
+			top = i
 		}
 	}
-	s := SetOf(order[0])
-	for i := 1; i < n; i++ {
-		if r[order[i-1]]-r[order[i]] > l.T || r[order[i]] <= Far/2 {
-			break
+	s := SetOf(top)
+	low := r[top]
+	for {
+		next := low
+		for i, x := range r {
+			if x >= low-l.T && x > Far/2 && !s.Has(i) {
+				s |= 1 << uint(i)
+				next = min(next, x)
+			}
 		}
-		s |= 1 << uint(order[i])
+		if next == low {
+			return s
+		}
+		low = next
 	}
-	return s
 }
 
 // Alive returns the channels of group a that are not certainly below another
 // channel of a, given readings r.
 func (l *Layout) Alive(a Set, r []int) Set {
+	// Channel k is certainly below j when r_k - lo_k < r_j - hi_j (see
+	// Below), so it is alive when r_k - lo_k is at least the largest
+	// r_j - hi_j over a (j = k never puts k below: hi_k >= lo_k).
+	var ceil int
+	first := true
+	for rest := a; rest != 0; rest &= rest - 1 {
+		j := bits.TrailingZeros32(uint32(rest))
+		if x := r[j] - l.Hi[j]; first || x > ceil {
+			ceil, first = x, false
+		}
+	}
 	var out Set
-	for k := 0; a>>uint(k) != 0; k++ {
-		if !a.Has(k) {
-			continue
-		}
-		below := false
-		for j := 0; a>>uint(j) != 0; j++ {
-			if j != k && a.Has(j) && l.Below(k, j, r[k], r[j]) {
-				below = true
-				break
-			}
-		}
-		if !below {
+	for rest := a; rest != 0; rest &= rest - 1 {
+		k := bits.TrailingZeros32(uint32(rest))
+		if r[k]-l.Lo[k] >= ceil {
 			out |= 1 << uint(k)
 		}
 	}

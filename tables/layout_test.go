@@ -3,6 +3,7 @@ package tables
 import (
 	"math"
 	"math/rand/v2"
+	"slices"
 	"testing"
 
 	"github.com/pickwise/pickwise/discretize"
@@ -92,11 +93,11 @@ func TestLayoutDistances(t *testing.T) {
 		t.Errorf("G, S, T, D = %d, %d, %d, %d, want 5, 4, 9, 13", l.G, l.S, l.T, l.D)
 	}
 	r := []int{0, 9, Far}
-	if g := l.TopGroup(r, nil); g != SetOf(0, 1) {
+	if g := l.TopGroup(r); g != SetOf(0, 1) {
 		t.Errorf("top group of %v: %v, want channels 0 and 1", r, g.Members())
 	}
 	r = []int{0, 10, Far}
-	if g := l.TopGroup(r, nil); g != SetOf(1) {
+	if g := l.TopGroup(r); g != SetOf(1) {
 		t.Errorf("top group of %v: %v, want channel 1 alone", r, g.Members())
 	}
 	// Channel 0 (exact, reads 0) is certainly below channel 1 when
@@ -210,4 +211,112 @@ func TestOffsetWorstDefinition(t *testing.T) {
 			}
 		}
 	}
+}
+
+// TestGroupAndAliveDefinitions checks TopGroup and Alive against their
+// definitions (design notes, "Groups and tables"), computed the plain
+// way: the group by sorting the readings and walking down from the
+// highest until a gap exceeds T, the alive channels by testing Below on
+// every pair. Readings are drawn close together, with ties, and some at
+// Far.
+func TestGroupAndAliveDefinitions(t *testing.T) {
+	rng := rand.New(rand.NewPCG(5, 17))
+	l := pmfModel(t, []float64{-3, 1, 1, 1, 1, 1}, []float64{0, 1, 1, 1, 1, 1},
+		[]float64{-1, 1, 2, 1}, []float64{0, 1}, []float64{2, 1, 0, 1})
+	n := l.N()
+	group := func(r []int) Set {
+		order := make([]int, n)
+		for i := range order {
+			order[i] = i
+		}
+		slices.SortStableFunc(order, func(a, b int) int { return r[b] - r[a] })
+		s := SetOf(order[0])
+		for i := 1; i < n; i++ {
+			if r[order[i-1]]-r[order[i]] > l.T || r[order[i]] <= Far/2 {
+				break
+			}
+			s |= 1 << uint(order[i])
+		}
+		return s
+	}
+	alive := func(a Set, r []int) Set {
+		var out Set
+		for _, k := range a.Members() {
+			below := false
+			for _, j := range a.Members() {
+				below = below || (j != k && l.Below(k, j, r[k], r[j]))
+			}
+			if !below {
+				out |= 1 << uint(k)
+			}
+		}
+		return out
+	}
+	r := make([]int, n)
+	joined, dead := 0, 0
+	for range 20000 {
+		for i := range r {
+			r[i] = rng.IntN(3*l.T) - l.T
+			if rng.IntN(6) == 0 {
+				r[i] = Far
+			}
+		}
+		g := l.TopGroup(r)
+		if want := group(r); g != want {
+			t.Fatalf("top group of %v: %v, want %v", r, g.Members(), want.Members())
+		}
+		if g.Len() > 1 {
+			joined++
+		}
+		a := l.Alive(g, r)
+		if want := alive(g, r); a != want {
+			t.Fatalf("alive channels of group %v at %v: %v, want %v", g.Members(), r, a.Members(), want.Members())
+		}
+		if a != g {
+			dead++
+		}
+	}
+	if joined < 1000 || dead < 1000 {
+		t.Fatalf("only %d draws with a group and %d with a channel certainly below: the test checks little", joined, dead)
+	}
+}
+
+// BenchmarkLocate measures what a table rule does at every reading vector
+// an evaluation visits: the top group and its alive channels.
+func BenchmarkLocate(b *testing.B) {
+	l, err := NewLayout(&discretize.Model{Step: 1, Channels: benchChannels(5)})
+	if err != nil {
+		b.Fatal(err)
+	}
+	rng := rand.New(rand.NewPCG(1, 2))
+	rs := make([][]int, 1024)
+	for i := range rs {
+		rs[i] = make([]int, l.N())
+		for c := range rs[i] {
+			rs[i][c] = rng.IntN(2 * l.T)
+		}
+	}
+	var sink Set
+	b.ResetTimer()
+	for i := range b.N {
+		r := rs[i%len(rs)]
+		g := l.TopGroup(r)
+		sink ^= l.Alive(g, r)
+	}
+	_ = sink
+}
+
+// benchChannels returns n channels with 5-point pmfs, alternately biased
+// low and high.
+func benchChannels(n int) []discretize.Channel {
+	var out []discretize.Channel
+	for i := range n {
+		lo := -3
+		if i%2 == 1 {
+			lo = 0
+		}
+		p, _ := discretize.Quantize(lo, []float64{1, 1, 2, 1, 1})
+		out = append(out, discretize.Channel{Name: "c", PMF: p})
+	}
+	return out
 }

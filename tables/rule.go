@@ -264,8 +264,7 @@ func (o *Optimal) Table(g Set) *Table {
 // Locate returns the top group of readings r, its alive channels, and the
 // table and cell index that decide (nil and -1 for a forced choice).
 func (o *Optimal) Locate(r []int) (g, alive Set, t *Table, cell int) {
-	var order [16]int
-	g = o.Layout.TopGroup(r, order[:len(r)])
+	g = o.Layout.TopGroup(r)
 	if g.Len() == 1 {
 		return g, g, nil, -1
 	}

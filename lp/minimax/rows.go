@@ -14,9 +14,9 @@ import (
 // rowScratch is the work space of one goroutine that computes regret rows
 // of cells already in the tables.
 type rowScratch struct {
-	r, order []int
-	acc      []float64
-	touched  []int
+	r       []int
+	acc     []float64
+	touched []int
 }
 
 // missing is an outcome of a configuration whose cell is not yet in the
@@ -44,7 +44,7 @@ func (f *Formulation) existingRow(v []int, sc *rowScratch, record bool) (idx []i
 		for i := range r {
 			r[i] = v[i] + a[i]
 		}
-		g := l.TopGroup(r, sc.order)
+		g := l.TopGroup(r)
 		alive := g
 		if g.Len() > 1 {
 			alive = l.Alive(g, r)
@@ -124,7 +124,7 @@ func (f *Formulation) addRegretRows(vs [][]int, also *lp.Problem) {
 		n := f.Layout.N()
 		cols := f.Problem.NumCols()
 		for len(f.scratch) < workers {
-			f.scratch = append(f.scratch, &rowScratch{r: make([]int, n), order: make([]int, n)})
+			f.scratch = append(f.scratch, &rowScratch{r: make([]int, n)})
 		}
 		var next atomic.Int64
 		var wg sync.WaitGroup

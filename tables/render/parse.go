@@ -98,7 +98,7 @@ func (b *builder) add(c cellText) error {
 		r[ch], diff[k] = d, d
 	}
 	set := tables.SetOf(mem...)
-	if top := b.l.TopGroup(r, nil); top != set {
+	if top := b.l.TopGroup(r); top != set {
 		return fmt.Errorf("group %s cell %v: these readings make channels %v the top group, so the cell is never used", g, diff, top.Members())
 	}
 	alive := b.l.Alive(set, r)

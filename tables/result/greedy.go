@@ -15,7 +15,6 @@ func GreedyTables(l *tables.Layout) *tables.Optimal {
 	n := l.N()
 	o := tables.NewOptimal(l)
 	r := make([]int, n)
-	order := make([]int, n)
 	p := make([]float64, n)
 	for _, g := range tables.Subsets(n) {
 		mem := g.Members()
@@ -49,7 +48,7 @@ func GreedyTables(l *tables.Layout) *tables.Optimal {
 					}
 					return
 				}
-				if l.TopGroup(r, order) != g {
+				if l.TopGroup(r) != g {
 					return
 				}
 				alive := l.Alive(g, r)

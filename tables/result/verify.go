@@ -167,7 +167,7 @@ func (f *File) Solution() (*Solution, error) {
 			for k, ch := range t.Members {
 				r[ch] = fc.Diff[k]
 			}
-			if fc.Diff[0] != 0 || l.TopGroup(r, nil) != g {
+			if fc.Diff[0] != 0 || l.TopGroup(r) != g {
 				return nil, mismatch(what, "these differences do not form group %v", ft.Group)
 			}
 			alive := l.Alive(g, r)
