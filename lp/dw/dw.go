@@ -389,7 +389,9 @@ func (m *Model) merge() {
 			m.rcol = append(m.rcol, j)
 			m.rval = append(m.rval, m.pval[e])
 		}
-		sort.Sort(byColumn{m.rcol[at:], m.rval[at:]})
+		if !slices.IsSorted(m.rcol[at:]) {
+			sort.Sort(byColumn{m.rcol[at:], m.rval[at:]})
+		}
 		m.rstart = append(m.rstart, len(m.rcol))
 	}
 	m.cstart, m.crow, m.cval = cstart, crow, cval
