@@ -586,8 +586,7 @@ func (m *Model) average() {
 //
 // A prior whose rows hold less than two thirds of the entries is read row
 // by row: only the weighed rows' entries, added to each column in row
-// order as well, so the sums are the same bits as a pass over every row's
-// entries gives (a row of weight 0 adds zeros). (The master's priors weigh
+// order as well, so the sums are the same bits. (The master's priors weigh
 // a tenth of the rows or less, but the longest: four channels with
 // 15-point pmfs, 7% of the rows with 37% of the entries.)
 func (m *Model) columnCosts(w, c []float64) {
