@@ -51,7 +51,7 @@ func TestConfigurations(t *testing.T) {
 	}
 }
 
-func pmfModel(t *testing.T, pmfs ...[]float64) *Layout {
+func pmfModel(t testing.TB, pmfs ...[]float64) *Layout {
 	t.Helper()
 	m := &discretize.Model{Step: 1}
 	for _, w := range pmfs {
@@ -282,12 +282,11 @@ func TestGroupAndAliveDefinitions(t *testing.T) {
 }
 
 // BenchmarkLocate measures what a table rule does at every reading vector
-// an evaluation visits: the top group and its alive channels.
+// an evaluation visits: the top group and its alive channels, for five
+// channels with 5-point pmfs, alternately biased low and high.
 func BenchmarkLocate(b *testing.B) {
-	l, err := NewLayout(&discretize.Model{Step: 1, Channels: benchChannels(5)})
-	if err != nil {
-		b.Fatal(err)
-	}
+	low, high := []float64{-3, 1, 1, 2, 1, 1}, []float64{0, 1, 1, 2, 1, 1}
+	l := pmfModel(b, low, high, low, high, low)
 	rng := rand.New(rand.NewPCG(1, 2))
 	rs := make([][]int, 1024)
 	for i := range rs {
@@ -304,19 +303,4 @@ func BenchmarkLocate(b *testing.B) {
 		sink ^= l.Alive(g, r)
 	}
 	_ = sink
-}
-
-// benchChannels returns n channels with 5-point pmfs, alternately biased
-// low and high.
-func benchChannels(n int) []discretize.Channel {
-	var out []discretize.Channel
-	for i := range n {
-		lo := -3
-		if i%2 == 1 {
-			lo = 0
-		}
-		p, _ := discretize.Quantize(lo, []float64{1, 1, 2, 1, 1})
-		out = append(out, discretize.Channel{Name: "c", PMF: p})
-	}
-	return out
 }
