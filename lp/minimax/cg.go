@@ -111,6 +111,28 @@ type CGResult struct {
 	Converged bool
 }
 
+// In-out separation (Ben-Ameur and Neto, Networks 49(1), 2007): while the
+// best rule's worst case exceeds the LP value by more than inOutGap of it,
+// the violated configurations added in a round are those where a mixture
+// of the best rule (weight inOutWeight) and the round's rule is worst, not
+// those where the round's rule alone is: the round's rule, optimal on the
+// working set only, is often far worse elsewhere than any rule near the
+// optimum, and its worst places say little about where the optimum's are.
+// Near the optimum the round's rule's own violations close the gap faster.
+// (Five channels with 5-point pmfs: a certified gap of 0.13 steps after
+// 130 s instead of 0.18 with the plain ranking, the LP value 0.615 after
+// eight rounds instead of 0.594; a weight of 0.5 gave 0.15, 0.95 gave
+// 0.14. Four channels with 15-point pmfs: the offset rule's worst case is
+// 25% above the first LP value, and this first round alone brings 10
+// rounds and 844 configurations instead of 11 and 1,016; with the weight
+// on in every round 13 rounds. Three channels of normal noise at step
+// 0.1, whose gap is 3% from the start: 15 rounds either way, 23 with the
+// weight on throughout.)
+const (
+	inOutWeight = 0.8
+	inOutGap    = 0.15
+)
+
 // solveBy solves the model, stopping at the deadline when it is not zero.
 func solveBy(ctx context.Context, m Incremental, deadline time.Time) (*lp.Solution, error) {
 	if !deadline.IsZero() {
@@ -260,10 +282,14 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 	// far, in the evaluator's order) are largest above it: the places
 	// that hold the best rule's worst case up, which the round's rule may
 	// not share.
+	// With a weight lam > 0 the configurations above threshold are ranked
+	// not by rule's regret r but by lam*prev + (1-lam)*r, the regret of a
+	// mixture of the best rule and rule (in-out separation: see
+	// inOutWeight).
 	// regs receives the regret of every configuration, in the
 	// evaluator's order (the same in every round).
 	var regs []float64
-	worst := func(rule tables.Rule, threshold float64, prev []float64, sizeOf func(tables.Set) int) ([]scored, float64, int, error) {
+	worst := func(rule tables.Rule, threshold float64, prev []float64, lam float64, sizeOf func(tables.Set) int) ([]scored, float64, int, error) {
 		var out []scored
 		regs = regs[:0]
 		top := 0.0
@@ -282,7 +308,11 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 				}
 				if reg > threshold {
 					count++
-					list = keep(list, size, v, reg)
+					if lam > 0 {
+						list = keep(list, size, v, lam*prev[at]+(1-lam)*reg)
+					} else {
+						list = keep(list, size, v, reg)
+					}
 				}
 				if prev != nil && prev[at] > threshold {
 					also = keep(also, max(1, size/2), v, prev[at])
@@ -305,7 +335,7 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 	// has about two per point of the subset's difference pmf), between 8
 	// and the batch: rows of fine-step normal noise reach tens of
 	// thousands of cells each.
-	init, initTop, _, err := worst(f.Tables, -1, nil, func(q tables.Set) int {
+	init, initTop, _, err := worst(f.Tables, -1, nil, 0, func(q tables.Set) int {
 		return min(batch, max(8, 500000/max(f.differences(q).Len(), 1)))
 	})
 	if err != nil {
@@ -390,7 +420,11 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 		// 0.14, the LP value rising every round instead of stalling
 		// after the third; three channels with 15-point pmfs: 4
 		// rounds instead of 14.)
-		viol, top, count, err := worst(f.Tables, threshold, best.regs, func(tables.Set) int { return batch })
+		lam := 0.0
+		if best.worst-sol.Objective > inOutGap*sol.Objective {
+			lam = inOutWeight
+		}
+		viol, top, count, err := worst(f.Tables, threshold, best.regs, lam, func(tables.Set) int { return batch })
 		if err != nil {
 			return nil, err
 		}
