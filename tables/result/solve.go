@@ -267,6 +267,13 @@ func Solve(ctx context.Context, m *discretize.Model, opt Options) (*Solution, er
 		s.Converged, s.Rounds = res.Converged, res.Rounds
 		s.Rows, s.Columns, s.Nonzeros = f.Problem.NumRows(), f.Problem.NumCols(), f.Problem.NumNonzeros()
 		s.Timing.Solve = time.Since(t0)
+		if !started {
+			// The figures waited for constraint generation, not for
+			// the certificate (four channels with 15-point pmfs: the
+			// two together took 6.3 s after constraint generation
+			// instead of 7.0 s one after the other).
+			start()
+		}
 	}
 	s.Objective, s.Iterations = sol.Objective, sol.Iterations
 
