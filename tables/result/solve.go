@@ -84,9 +84,10 @@ type Figure struct {
 // Timing records where the time of a solve went.
 type Timing struct {
 	Build, Solve, Polish, Certify time.Duration
-	// Heuristics is the time of the greedy and offset figures. Without
-	// a time limit they are computed alongside the LP, so it overlaps
-	// Build, Solve, Polish and Certify.
+	// Heuristics is the time of the greedy and offset figures. They are
+	// computed alongside the LP and the certificate (with constraint
+	// generation and a time limit, alongside the certificate only), so
+	// it overlaps the others.
 	Heuristics time.Duration
 }
 
