@@ -2,6 +2,7 @@ package dw_test
 
 import (
 	"context"
+	"fmt"
 	"math"
 	"math/rand/v2"
 	"runtime"
@@ -382,6 +383,34 @@ func TestProcessors(t *testing.T) {
 			if got.Objective != want.Objective || !slices.Equal(got.X, want.X) || !slices.Equal(got.RowDual, want.RowDual) {
 				t.Errorf("optimum %.17g, one processor in order %.17g; or the mixture or prior differs", got.Objective, want.Objective)
 			}
+		})
+	}
+}
+
+// TestFinerThanMaster asks for a tolerance (1e-16) finer than the master's
+// simplex resolves: the solve must end, not loop until MaxIterations, with
+// an optimum its prior proves within 1e-10 of it, relative (the master's
+// tolerances). (Seeds 2 and 3 of these
+// programs sat at relative gaps of about 3e-16, the master taking no
+// iteration, before the solve ended on a master that no longer moves.)
+func TestFinerThanMaster(t *testing.T) {
+	for _, seed := range []uint64{2, 3} {
+		t.Run(fmt.Sprint("seed ", seed), func(t *testing.T) {
+			rng := rand.New(rand.NewPCG(seed, 7))
+			p := randomProgram(rng, 300, 200, func(int) int { return 300 })
+			m, err := dw.New(p.problem(0, p.ncols, p.rows, seq(300)))
+			if err != nil {
+				t.Fatal(err)
+			}
+			defer m.Close()
+			m.Tol = 1e-16
+			m.MaxIterations = 2000
+			m.Parts(func(col int) int { return col % 5 })
+			sol, err := m.Solve(context.Background())
+			if err != nil {
+				t.Fatal(err)
+			}
+			checkSolution(t, p, sol, 1e-10*sol.Objective)
 		})
 	}
 }
