@@ -292,6 +292,11 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 	// regs receives the regret of every configuration, in the
 	// evaluator's order (the same in every round).
 	var regs []float64
+	// nbr, when not nil, holds the configurations next to those the LP's
+	// prior weighs (see neighbours); worst appends those it finds
+	// violated to nbrList.
+	var nbr map[configKey]bool
+	var nbrList []scored
 	worst := func(rule tables.Rule, threshold float64, prev []float64, lam float64, sizeOf func(tables.Set) int) ([]scored, float64, int, error) {
 		var out []scored
 		regs = regs[:0]
@@ -308,6 +313,9 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 			}, func(at int, v []int, reg float64) {
 				if inSet[keyOf(canon(v))] {
 					return
+				}
+				if nbr != nil && reg > threshold && nbr[keyOf(canon(v))] {
+					nbrList = append(nbrList, scored{append([]int(nil), v...), reg})
 				}
 				if reg > threshold {
 					count++
@@ -427,10 +435,15 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 		if best.worst-sol.Objective > inOutGap*sol.Objective {
 			lam = inOutWeight
 		}
+		nbr, nbrList = nil, nil
+		if lam > 0 {
+			nbr = neighbours(f, sol.RowDual, canon)
+		}
 		viol, top, count, err := worst(f.Tables, threshold, best.regs, lam, func(tables.Set) int { return batch })
 		if err != nil {
 			return nil, err
 		}
+		viol = append(viol, nbrList...)
 		res.Solution, res.Rounds = sol, round
 		if len(regs) != len(best.regs) {
 			return nil, fmt.Errorf("constraint generation: the evaluator reported %d configurations, then %d", len(best.regs), len(regs))
@@ -530,4 +543,61 @@ func bestMix(a, b []float64, lower float64) (theta, worst float64) {
 		}
 	}
 	return theta, worst
+}
+
+// neighbours returns the keys of the canonical configurations one step
+// away, in one channel of their subset, from the configurations that the
+// prior in dual weighs. While the gap is wide (see inOutWeight) the
+// violated ones are added besides the batch: the LP's value is held by a
+// few configurations (five channels with 5-point pmfs: about 20 of
+// 2,000), and those next to them share most of their cells, so that they
+// are the ones most likely to raise it. (Five channels: LP value 0.636
+// and a certified gap of 0.096 steps after 238 s instead of 0.615 and
+// 0.121; four channels with 15-point pmfs: 7 rounds and 79 s instead of
+// 10 and about 105 s. On two random four-channel models it cost time:
+// 51 s instead of 30 s, 64 s instead of 54 s.)
+func neighbours(f *Formulation, dual []float64, canon func([]int) []int) map[configKey]bool {
+	out := make(map[configKey]bool)
+	l := f.Layout
+	u := make([]int, l.N())
+	var mem []int
+	for k, x := range f.Prior(dual) {
+		if x == 0 {
+			continue
+		}
+		v := f.Config(k)
+		for i := range v {
+			if v[i] == tables.Far {
+				continue
+			}
+			for _, d := range []int{-1, 1} {
+				copy(u, v)
+				u[i] += d
+				// Back to the lowest value 0, and the subset's sorted
+				// gaps at most D.
+				lo := math.MaxInt
+				for _, x := range u {
+					if x != tables.Far {
+						lo = min(lo, x)
+					}
+				}
+				mem = mem[:0]
+				for j, x := range u {
+					if x != tables.Far {
+						u[j] = x - lo
+						mem = append(mem, u[j])
+					}
+				}
+				slices.Sort(mem)
+				ok := true
+				for j := 1; j < len(mem); j++ {
+					ok = ok && mem[j]-mem[j-1] <= l.D
+				}
+				if ok {
+					out[keyOf(canon(u))] = true
+				}
+			}
+		}
+	}
+	return out
 }
