@@ -3,12 +3,13 @@
 //
 // The programs it takes have the form
 //
-//	minimise    t
+//	minimise    t + c·x
 //	subject to  a_v·x - t <= b_v          for every linking row v
 //	            sum_j m_j x_j = 1         over the columns j of each block
 //	            x >= 0
 //
-// with t in column 0. Every column other than t belongs to exactly one
+// with t in column 0 and column costs c >= 0 (zero unless SetCosts says
+// otherwise). Every column other than t belongs to exactly one
 // block, whose row has positive coefficients m_j and right-hand side 1: the
 // feasible x form a product of simplices, one per block, and their extreme
 // points are the choices of one column per block ("pure" points). The
@@ -25,7 +26,7 @@
 //	subject to  σ <= Σ_v π_v R_j(v)   for every pure point j found so far
 //	            Σ_v π_v = 1, π >= 0
 //
-// where R_j(v) = a_v·x^j - b_v. The pure point that minimises the prior's
+// where R_j(v) = a_v·x^j - b_v (plus c·x^j). The pure point that minimises the prior's
 // expected row value is found block by block (pricing), and its value is a
 // lower bound on the program's optimum; the master's optimum σ is an upper
 // bound, reached by the mixture of pure points that the master's duals
@@ -138,6 +139,9 @@ type Model struct {
 	bpart  []int32       // part of each block, as far as computed
 	pblock [][]int32     // the blocks of each part, in order
 	nparts int
+
+	costs    []float64 // per column, as far as set (see SetCosts)
+	newCosts bool      // costs changed since the last solve
 }
 
 // A solve whose master has not moved for stallRounds solves in a row ends
@@ -172,6 +176,7 @@ type point struct {
 // cut is the part of a pure point in one part of the blocks, with its row
 // values: r[v] = a_v·x restricted to the part's blocks (without b_v).
 type cut struct {
+	k      float64 // the point's cost c·x in the part
 	pt     *point
 	part   int32
 	r      []float64
@@ -290,6 +295,56 @@ func (m *Model) AddRows(p *lp.Problem) error {
 	m.stale = true
 	m.avg = nil
 	return nil
+}
+
+// SetCosts sets the costs c of the columns (see the package comment) for
+// the solves that follow: c[j] for the columns j < len(c), zero for the
+// others (t's entry, c[0], must be zero). Costs that change start the next
+// solve's lower bound afresh, from the prior of the last one.
+func (m *Model) SetCosts(c []float64) error {
+	for j, x := range c {
+		if j >= m.ncols {
+			return fmt.Errorf("dw: costs for %d columns; the program has %d", len(c), m.ncols)
+		}
+		if !(x >= 0) || math.IsInf(x, 1) || (j == 0 && x != 0) {
+			return fmt.Errorf("dw: column %d has cost %g; want finite, non-negative, and 0 for t", j, x)
+		}
+	}
+	// Trailing zeros do not count.
+	n := len(c)
+	for n > 0 && c[n-1] == 0 {
+		n--
+	}
+	if slices.Equal(c[:n], m.costs) {
+		return nil
+	}
+	m.costs = slices.Clone(c[:n])
+	if m.costs == nil {
+		m.costs = []float64{}
+	}
+	m.newCosts = true
+	return nil
+}
+
+// pointCosts returns, per part, the cost c·x of pure point pt over the
+// part's blocks.
+func (m *Model) pointCosts(pt *point) []float64 {
+	out := make([]float64, m.nparts)
+	if len(m.costs) == 0 {
+		return out
+	}
+	for p := range out {
+		if p >= len(m.pblock) {
+			continue
+		}
+		for _, b := range m.pblock[p] {
+			j := m.bcols[m.bstart[b]+int(pt.pick[b])]
+			if int(j) < len(m.costs) {
+				out[p] += m.costs[j] / m.mult[j]
+			}
+		}
+	}
+	return out
 }
 
 // Close frees the master program.
@@ -493,9 +548,10 @@ func parallelChunks(n, chunk int, f func(lo, hi int)) {
 // newCuts returns the cuts of point pt in every part.
 func (m *Model) newCuts(pt *point, sticky bool) []*cut {
 	rv := m.rowValues(pt, 0)
+	k := m.pointCosts(pt)
 	out := make([]*cut, m.nparts)
 	for p := range out {
-		out[p] = &cut{pt: pt, part: int32(p), r: rv[p], sticky: sticky}
+		out[p] = &cut{pt: pt, part: int32(p), r: rv[p], sticky: sticky, k: k[p]}
 	}
 	return out
 }
@@ -516,6 +572,9 @@ func (m *Model) price(pi []float64) (*point, float64) {
 		}
 	}
 	m.columnCosts(w, c)
+	for j, x := range m.costs {
+		c[j] += x
+	}
 	// Of the columns that minimise a block's cost, pick the preferred
 	// one, or the one best on average over all linking rows: blocks that
 	// no row of the prior reaches then choose sensibly, not arbitrarily.
@@ -682,6 +741,17 @@ func (m *Model) rebuild() error {
 			c.r = append(c.r, rv[c.part][len(c.r)-from:]...)
 		}
 	}
+	// The cuts' costs: the costs may have changed, and points found
+	// before a block existed choose its first column.
+	kOf := make(map[*point][]float64)
+	for _, c := range m.cuts {
+		k, ok := kOf[c.pt]
+		if !ok {
+			k = m.pointCosts(c.pt)
+			kOf[c.pt] = k
+		}
+		c.k = k[c.part]
+	}
 	// Every part needs a cut: the base point's.
 	has := make([]bool, m.nparts)
 	for _, c := range m.cuts {
@@ -693,7 +763,10 @@ func (m *Model) rebuild() error {
 			if rv == nil {
 				rv = m.rowValues(m.base, 0)
 			}
-			m.cuts = append(m.cuts, &cut{pt: m.base, part: int32(p), r: rv[p], sticky: true})
+			if kOf[m.base] == nil {
+				kOf[m.base] = m.pointCosts(m.base)
+			}
+			m.cuts = append(m.cuts, &cut{pt: m.base, part: int32(p), r: rv[p], sticky: true, k: kOf[m.base][p]})
 		}
 	}
 
@@ -752,7 +825,7 @@ func (m *Model) addCut(q interface {
 			val = append(val, -r)
 		}
 	}
-	q.AddRow(idx, val, math.Inf(-1), 0)
+	q.AddRow(idx, val, math.Inf(-1), c.k)
 }
 
 // cutRows adapts clp.Rows to addCut.
@@ -790,6 +863,12 @@ func (m *Model) Solve(ctx context.Context) (*lp.Solution, error) {
 		maxIt = 100000
 	}
 	k := m.nlink()
+	if m.newCosts {
+		// The lower bound was for other costs: start again from the
+		// prior that gave it.
+		m.bestLB = math.Inf(-1)
+		m.stale = true
+	}
 	if m.stale {
 		// The best lower bound so far still holds: its prior puts no
 		// weight on the new linking rows, and the old rows do not reach
@@ -823,6 +902,12 @@ func (m *Model) Solve(ctx context.Context) (*lp.Solution, error) {
 				}
 			}
 		}
+		if m.newCosts && math.IsInf(m.bestLB, -1) {
+			pt, lb := m.price(m.center)
+			m.bestLB = lb
+			m.cuts = append(m.cuts, m.newCuts(pt, false)...)
+		}
+		m.newCosts = false
 		m.baseBlocks = len(m.brow)
 		if err := m.rebuild(); err != nil {
 			return nil, err
@@ -930,6 +1015,7 @@ func (m *Model) Solve(ctx context.Context) (*lp.Solution, error) {
 			for _, c := range cs {
 				m.cuts = append(m.cuts, c)
 				m.addCut(cr, c)
+				at += c.k
 				for v, w := range pi {
 					at += w * c.r[v]
 				}
@@ -964,7 +1050,6 @@ func (m *Model) Solve(ctx context.Context) (*lp.Solution, error) {
 	}
 	// The mixture: in each part, weight λ_c = -dual on cut c's point.
 	x := make([]float64, m.ncols)
-	x[0] = sigma
 	mass := make([]float64, m.nparts)
 	for ci, c := range m.cuts {
 		if w := -dual[ci]; w > 0 {
@@ -984,6 +1069,11 @@ func (m *Model) Solve(ctx context.Context) (*lp.Solution, error) {
 			col := m.bcols[m.bstart[b]+int(at)]
 			x[col] += w / m.mult[col]
 		}
+	}
+	// t is the optimum less the mixture's cost.
+	x[0] = sigma
+	for j, c := range m.costs {
+		x[0] -= c * x[j]
 	}
 	m.prune(dual, 16*m.nparts)
 	out := make([]float64, m.nrows)

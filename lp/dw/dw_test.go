@@ -517,3 +517,90 @@ func TestCostsByRow(t *testing.T) {
 		})
 	}
 }
+
+// TestCosts solves random programs with column costs, changing them
+// between solves of one model (and back to none), and compares each
+// optimum with gonum's simplex on the whole program with those costs
+// (gonum.org/v1/gonum/optimize/convex/lp, a general-purpose reference
+// solver). t must come out as the largest row.
+func TestCosts(t *testing.T) {
+	for _, tc := range []struct {
+		name   string
+		seed   uint64
+		nb, nl int
+		parts  int
+		prefer bool
+	}{
+		{"one part", 21, 30, 15, 0, false},
+		{"parts and preferred columns", 22, 40, 25, 3, true},
+		{"a part per column", 23, 12, 10, 1000, true},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			rng := rand.New(rand.NewPCG(tc.seed, 5))
+			p := randomProgram(rng, tc.nb, tc.nl, func(int) int { return tc.nb })
+			q := p.problem(0, p.ncols, p.rows, seq(tc.nb))
+			m, err := dw.New(q)
+			if err != nil {
+				t.Fatal(err)
+			}
+			defer m.Close()
+			if tc.parts > 0 {
+				m.Parts(func(col int) int { return col % tc.parts })
+			}
+			if tc.prefer {
+				m.Prefer(func(col int) float64 { return float64(col % 3) })
+			}
+			random := func(scale float64) []float64 {
+				c := make([]float64, p.ncols)
+				for j := 1; j < len(c); j++ {
+					if rng.IntN(3) > 0 {
+						c[j] = scale * rng.Float64()
+					}
+				}
+				return c
+			}
+			for step, c := range [][]float64{random(0.3), random(0.01), nil, random(0.1)} {
+				if err := m.SetCosts(c); err != nil {
+					t.Fatal(err)
+				}
+				sol, err := m.Solve(context.Background())
+				if err != nil {
+					t.Fatal(err)
+				}
+				wq := p.problem(0, p.ncols, p.rows, seq(tc.nb))
+				copy(wq.Obj[1:], c[min(1, len(c)):])
+				ref, err := gonumlp.Solver{}.Solve(context.Background(), wq)
+				if err != nil {
+					t.Fatal(err)
+				}
+				if math.Abs(sol.Objective-ref.Objective) > 1e-9*math.Max(1, math.Abs(ref.Objective)) {
+					t.Errorf("step %d: optimum %.12g, gonum %.12g", step, sol.Objective, ref.Objective)
+				}
+				top, cost := math.Inf(-1), 0.0
+				for _, r := range p.rows {
+					v := -r.b
+					for e, j := range r.idx {
+						v += r.val[e] * sol.X[j]
+					}
+					top = math.Max(top, v)
+				}
+				for j, x := range c {
+					cost += x * sol.X[j]
+				}
+				if math.Abs(sol.X[0]-top) > 1e-9 || math.Abs(sol.Objective-top-cost) > 1e-9 {
+					t.Errorf("step %d: t = %.12g, largest row %.12g, optimum %.12g = t + %.12g?", step, sol.X[0], top, sol.Objective, cost)
+				}
+			}
+		})
+	}
+	m, err := dw.New(randomProgram(rand.New(rand.NewPCG(1, 1)), 3, 2, func(int) int { return 3 }).problem(0, 4, nil, nil))
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer m.Close()
+	for _, c := range [][]float64{{0, -1}, {1, 0}, {0, math.NaN()}, make([]float64, 100)} {
+		if err := m.SetCosts(c); err == nil {
+			t.Errorf("SetCosts(%v): no error", c)
+		}
+	}
+}
