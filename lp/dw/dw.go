@@ -326,6 +326,9 @@ func (m *Model) SetCosts(c []float64) error {
 	return nil
 }
 
+// SetTolerance sets Tol.
+func (m *Model) SetTolerance(tol float64) { m.Tol = tol }
+
 // pointCosts returns, per part, the cost c·x of pure point pt over the
 // part's blocks.
 func (m *Model) pointCosts(pt *point) []float64 {

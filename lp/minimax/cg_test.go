@@ -10,6 +10,7 @@ import (
 
 	"github.com/pickwise/pickwise/lp"
 	"github.com/pickwise/pickwise/lp/clp"
+	"github.com/pickwise/pickwise/lp/dw"
 	"github.com/pickwise/pickwise/lp/minimax"
 	"github.com/pickwise/pickwise/tables"
 	"github.com/pickwise/pickwise/tables/fast"
@@ -287,5 +288,55 @@ func TestCGNoFalseConvergence(t *testing.T) {
 	if res.Converged || math.Abs(w.Regret-res.WorstCase) > 1e-12*w.Regret || w.Regret < opt*(1-1e-9) {
 		t.Errorf("converged %v after %d rounds; worst case %.12g (reported %.12g), optimum %.12g",
 			res.Converged, res.Rounds, w.Regret, res.WorstCase, opt)
+	}
+}
+
+// TestCGShaped: on skewed noise whose gap stays wide for rounds, lp/dw
+// (a minimax.Shaper) solves shaped rounds; none ends the loop, and the
+// loop still converges to the optimum of the direct LP solved by CLP
+// (the shaped LP only chooses which configurations come next).
+func TestCGShaped(t *testing.T) {
+	for _, tc := range []struct {
+		name  string
+		batch int
+	}{
+		{"batch 1", 1},
+		{"batch 2", 2},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			m := model(t, 1,
+				[]float64{-3, 0.11, 0.16, 0.2, 0.19, 0.34},
+				[]float64{0, 0.28, 0.1, 0.08, 0.26, 0.28},
+				[]float64{-3, 0.15, 0.16, 0.48, 0.08, 0.13})
+			direct := solve(t, m, clp.Solver{PrimalTolerance: 1e-9, DualTolerance: 1e-9})
+			l := direct.l
+			var shaped []bool
+			opt := minimax.CGOptions{Batch: tc.batch, Half: l.OffsetHalfSteps(), Radius: -1, Progress: func(p minimax.Progress) {
+				shaped = append(shaped, p.Shaped)
+			}}
+			newModel := func(p *lp.Problem) (minimax.Incremental, error) { return dw.New(p) }
+			res, err := minimax.SolveCG(context.Background(), l, newModel, opt)
+			if err != nil {
+				t.Fatal(err)
+			}
+			t.Logf("rounds shaped: %v", shaped)
+			if !slices.Contains(shaped, true) {
+				t.Fatal("no round was shaped: the model does not test shaping")
+			}
+			if shaped[len(shaped)-1] {
+				t.Error("the last round was shaped")
+			}
+			if !res.Converged {
+				t.Fatal("constraint generation did not converge")
+			}
+			w, err := fast.WorstCase(l, res.F.Tables, l.D)
+			if err != nil {
+				t.Fatal(err)
+			}
+			want := direct.sol.Objective
+			if math.Abs(res.Solution.Objective-want) > 1e-8*want || math.Abs(w.Regret-want) > 1e-8*want {
+				t.Errorf("LP value %.12g and worst case %.12g, want the direct optimum %.12g", res.Solution.Objective, w.Regret, want)
+			}
+		})
 	}
 }
