@@ -171,7 +171,8 @@ type Shaper interface {
 // interval; the cost alone, at the default tolerance, made the DW solves
 // several times slower. Four channels with 15-point pmfs, wide after the
 // first round only, are not shaped: shaped from the second round on they
-// took 9 rounds and 111 s instead of 7 and 76 to 83 s.)
+// took 9 rounds and 111 s instead of 7 and 76 to 83 s. Two random
+// four-channel models: 13 s instead of 51 s, 80 s instead of 64 s.)
 const (
 	shapeBias = 1e-6
 	shapeTol  = 1e-3
