@@ -8,6 +8,7 @@ import (
 	"testing"
 	"time"
 
+	"github.com/pickwise/pickwise/discretize"
 	"github.com/pickwise/pickwise/lp"
 	"github.com/pickwise/pickwise/lp/clp"
 	"github.com/pickwise/pickwise/lp/dw"
@@ -105,10 +106,7 @@ func TestCGKeepsBestRule(t *testing.T) {
 	// Skewed 5-point pmfs on three channels: the rules of the rounds do
 	// not improve monotonically (the working set leaves them free away
 	// from its configurations).
-	m := model(t, 1,
-		[]float64{-3, 0.11, 0.16, 0.2, 0.19, 0.34},
-		[]float64{0, 0.28, 0.1, 0.08, 0.26, 0.28},
-		[]float64{-3, 0.15, 0.16, 0.48, 0.08, 0.13})
+	m := skewedModel(t)
 	l, err := tables.NewLayout(m)
 	if err != nil {
 		t.Fatal(err)
@@ -167,10 +165,7 @@ func TestCGKeepsBestRule(t *testing.T) {
 // optimum of the direct LP (the LP is exact whatever rule the missing
 // cells follow: invariance of the optimum, design notes, step 5).
 func TestCGOffsets(t *testing.T) {
-	m := model(t, 1,
-		[]float64{-3, 0.11, 0.16, 0.2, 0.19, 0.34},
-		[]float64{0, 0.28, 0.1, 0.08, 0.26, 0.28},
-		[]float64{-3, 0.15, 0.16, 0.48, 0.08, 0.13})
+	m := skewedModel(t)
 	direct := solve(t, m, clp.Solver{PrimalTolerance: 1e-9, DualTolerance: 1e-9})
 	l := direct.l
 	half := l.OffsetHalfSteps()
@@ -304,10 +299,7 @@ func TestCGShaped(t *testing.T) {
 		{"batch 2", 2},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
-			m := model(t, 1,
-				[]float64{-3, 0.11, 0.16, 0.2, 0.19, 0.34},
-				[]float64{0, 0.28, 0.1, 0.08, 0.26, 0.28},
-				[]float64{-3, 0.15, 0.16, 0.48, 0.08, 0.13})
+			m := skewedModel(t)
 			direct := solve(t, m, clp.Solver{PrimalTolerance: 1e-9, DualTolerance: 1e-9})
 			l := direct.l
 			var shaped []bool
@@ -339,4 +331,13 @@ func TestCGShaped(t *testing.T) {
 			}
 		})
 	}
+}
+
+// skewedModel has three channels of unequal, skewed 5-point noise (one
+// step), whose offset rule is far better than the highest reading.
+func skewedModel(t testing.TB) *discretize.Model {
+	return model(t, 1,
+		[]float64{-3, 0.11, 0.16, 0.2, 0.19, 0.34},
+		[]float64{0, 0.28, 0.1, 0.08, 0.26, 0.28},
+		[]float64{-3, 0.15, 0.16, 0.48, 0.08, 0.13})
 }
