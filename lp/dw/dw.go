@@ -319,9 +319,6 @@ func (m *Model) SetCosts(c []float64) error {
 		return nil
 	}
 	m.costs = slices.Clone(c[:n])
-	if m.costs == nil {
-		m.costs = []float64{}
-	}
 	m.newCosts = true
 	return nil
 }

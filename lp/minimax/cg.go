@@ -404,15 +404,19 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 		return nil, err
 	}
 	defer model.Close()
+	// prefScore scores a column by its channel's reading plus offset in
+	// its cell, lowest best: the offset rule's choice, which a cell
+	// without columns makes.
+	prefScore := func(col int) float64 {
+		v := f.Vars[col-1]
+		t := f.Tables.Table(v.Group)
+		return -float64(tables.OffsetScore(t.Cells[v.Cell].Diff[v.Channel], f.Tables.Half, t.Members[v.Channel]))
+	}
 	if pm, ok := model.(interface{ Prefer(func(col int) float64) }); ok {
 		// Where nothing decides between a cell's channels, prefer the
 		// highest reading plus its offset, as a cell without columns
 		// does.
-		pm.Prefer(func(col int) float64 {
-			v := f.Vars[col-1]
-			t := f.Tables.Table(v.Group)
-			return -float64(tables.OffsetScore(t.Cells[v.Cell].Diff[v.Channel], f.Tables.Half, t.Members[v.Channel]))
-		})
+		pm.Prefer(prefScore)
 	}
 	if pm, ok := model.(interface{ Parts(func(col int) int) }); ok {
 		// A part per table and channel of highest reading.
@@ -438,12 +442,9 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 		c := make([]float64, p.NumCols())
 		for j := 1; j < len(c); {
 			v := f.Vars[j-1]
-			t := f.Tables.Table(v.Group)
 			k, at, best := j, j, math.Inf(1)
 			for ; k < len(c) && f.Vars[k-1].Group == v.Group && f.Vars[k-1].Cell == v.Cell; k++ {
-				w := f.Vars[k-1]
-				sc := -float64(tables.OffsetScore(t.Cells[w.Cell].Diff[w.Channel], f.Tables.Half, t.Members[w.Channel]))
-				if sc < best {
+				if sc := prefScore(k); sc < best {
 					at, best = k, sc
 				}
 			}
