@@ -37,13 +37,14 @@ type CGOptions struct {
 	// Tol*(LP value) + 1e-12 steps. Zero means 1e-10.
 	Tol float64
 	// Batch is the number of most violated configurations added per
-	// subset and round; zero means 512 divided by the number of subsets,
-	// between 8 and 128 (128 for two and three channels, 46 for four, 19
-	// for five).
+	// subset and round; zero means 128. The initial working set takes
+	// fewer per subset where its rows are long (see SolveCG).
 	// (Three channels with 15-point pmfs: 32 took 15 rounds and 7.9 s,
 	// 128 took 8 rounds and 5.9 s, 512 took 6 rounds and 29 s, the LP
-	// solves growing slow; four channels with 15-point pmfs: at 128 the
-	// first LP, 1,408 rows of 3M nonzeros, took over 90 s.)
+	// solves growing slow. With shaped rounds (see Shaper), four
+	// channels with 15-point pmfs: 128 took 9 rounds and 49 s, 46 took
+	// 10 rounds and 60 s; five channels with 5-point pmfs: 128 and 200
+	// reach about the same gaps in the same time.)
 	Batch int
 	// MaxRounds stops after this many rounds (zero: 1000).
 	MaxRounds int
@@ -105,8 +106,9 @@ type CGResult struct {
 	// converged on it, otherwise the mixture of the rounds' rules and
 	// the highest reading with the least worst case.
 	F *Formulation
-	// Solution is the LP solution of the last round: its duals give the
-	// best prior found.
+	// Solution is the LP solution of the exact round (not shaped, see
+	// Shaper) with the highest value: its duals give the best prior
+	// found.
 	Solution *lp.Solution
 	// WorstCase is the fast evaluator's worst case of the rule in F's
 	// tables, in steps.
@@ -148,34 +150,45 @@ type Shaper interface {
 	SetTolerance(tol float64)
 }
 
-// Shaped rounds: once the gap has been as wide as for in-out separation
-// after two rounds in a row, a Shaper model solves the working set's LP
-// with a cost of shapeBias steps per unit of probability a cell puts off
-// its preferred channel (the offset rule's choice), to the relative
-// tolerance shapeTol, for as long as the gap stays that wide. The LP over
-// a few thousand configurations has a vast set of optimal rules, and an
+// Shaped rounds: every round after the first whose rule is not to be
+// the working set's optimum solves, with a Shaper model, a proximal
+// version of the working set's LP: minimise t plus a cost of mu steps per
+// unit of probability that a cell moves away from the best rule so far
+// (per column, mu times one less the best rule's probability of that
+// choice), to a relative tolerance of a tenth of the gap between the best
+// rule's worst case and the LP value of the last exact round, at most
+// shapeTol. mu is shapeBias while that gap is over shapeRel of the LP
+// value and shrinks with it below: the best rule is randomised in some
+// cells, which the linear cost pulls towards their likelier choice, and
+// that pull must fade for the best rule to reach the optimum.
+//
+// The LP over a working set has a vast set of optimal rules, and an
 // optimal vertex takes, in cells that the prior's configurations reach
 // with tiny probability, whatever choice helps them by a hair, however
 // bad for the configurations outside the working set that reach those
-// cells often: the round's rule is then far worse than the offset rule
-// over all configurations (five channels with 5-point pmfs: worst case
-// 1.2 to 2.4 steps against an LP value of 0.64). The cost keeps a cell
-// with the offset rule unless leaving it is worth more than the cost,
-// and the round's rule stays sane (worst case 0.7 to 1.1). The shaped
-// LP's value is not a lower bound, so a shaped round never ends the loop
-// as converged, and the round after a gap under inOutGap is exact.
-// (Five channels with 5-point pmfs, make bench: a certified gap of 0.073
-// steps, [0.635, 0.708], after 274 s instead of 0.096, [0.635, 0.731];
-// 4,100 violated configurations after ten rounds instead of 27,000. The
-// loose tolerance alone gave more rounds, 14 instead of 11, and the same
-// interval; the cost alone, at the default tolerance, made the DW solves
-// several times slower. Four channels with 15-point pmfs, wide after the
-// first round only, are not shaped: shaped from the second round on they
-// took 9 rounds and 111 s instead of 7 and 76 to 83 s. Two random
-// four-channel models: 13 s instead of 51 s, 80 s instead of 64 s.)
+// cells often: the exact round's rule is then far worse than the best
+// rule over all configurations (five channels with 5-point pmfs: worst
+// case 1.2 to 2.4 steps against an LP value of 0.64). Plain constraint
+// generation is Kelley's cutting-plane method on the rule's worst case,
+// and those jumps are its well-known weakness; the cost makes each round
+// a step of a proximal bundle method instead, which keeps the round's
+// rule near the best one except where moving pays, and the best rule
+// improves every round. The shaped LP's value is not a lower bound: the
+// lower bound is the Bayes risk of a round's prior (Formulation.PriorValue),
+// exact or shaped, and the solution whose prior gives the highest is the
+// one returned (the certificate's prior). A round is exact when the round
+// before was shaped and found no violated configuration: its value is the
+// working set's optimum. The loop ends when the best rule's worst case is
+// within the tolerance of the lower bound, or an exact round's rule is
+// optimal.
+// (Five channels with 5-point pmfs: a certified gap of 0.0033 steps, [0.6355, 0.6388], after
+// 240 s instead of 0.073. Four channels with 15-point pmfs: 9 rounds and
+// 49 s instead of 7 and 83 s; three channels of normal noise at step 0.1:
+// 16 s and 1.7 GiB instead of 45 s and 3.1 GiB.)
 const (
 	shapeBias = 1e-6
 	shapeTol  = 1e-3
+	shapeRel  = 0.01
 )
 
 // solveBy solves the model, stopping at the deadline when it is not zero.
@@ -228,7 +241,7 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 	}
 	batch := opt.Batch
 	if batch == 0 {
-		batch = min(128, max(8, 512/len(tables.Subsets(l.N()))))
+		batch = 128
 	}
 	maxRounds := opt.MaxRounds
 	if maxRounds == 0 {
@@ -396,6 +409,13 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 		return nil, err
 	}
 	add(init)
+	if core := f.coreConfigs(coreNonzeros); len(core) > 0 {
+		list := make([]scored, len(core))
+		for i, v := range core {
+			list[i] = scored{v: v}
+		}
+		add(list)
+	}
 	f.addCellRowsFrom(1, nil)
 	cols := f.Problem.NumCols()
 	// The model starts with the initial regret rows and the cell rows.
@@ -404,19 +424,15 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 		return nil, err
 	}
 	defer model.Close()
-	// prefScore scores a column by its channel's reading plus offset in
-	// its cell, lowest best: the offset rule's choice, which a cell
-	// without columns makes.
-	prefScore := func(col int) float64 {
-		v := f.Vars[col-1]
-		t := f.Tables.Table(v.Group)
-		return -float64(tables.OffsetScore(t.Cells[v.Cell].Diff[v.Channel], f.Tables.Half, t.Members[v.Channel]))
-	}
 	if pm, ok := model.(interface{ Prefer(func(col int) float64) }); ok {
 		// Where nothing decides between a cell's channels, prefer the
-		// highest reading plus its offset, as a cell without columns
-		// does.
-		pm.Prefer(prefScore)
+		// highest reading plus its offset (lowest score best), as a cell
+		// without columns does.
+		pm.Prefer(func(col int) float64 {
+			v := f.Vars[col-1]
+			t := f.Tables.Table(v.Group)
+			return -float64(tables.OffsetScore(t.Cells[v.Cell].Diff[v.Channel], f.Tables.Half, t.Members[v.Channel]))
+		})
 	}
 	if pm, ok := model.(interface{ Parts(func(col int) int) }); ok {
 		// A part per table and channel of highest reading.
@@ -435,32 +451,44 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 	}
 	pending = &lp.Problem{}
 
-	// shapeCosts returns the shaped LP's column costs: shapeBias per
-	// unit of probability off a cell's preferred column.
-	shapeCosts := func() []float64 {
-		p := f.Problem
-		c := make([]float64, p.NumCols())
-		for j := 1; j < len(c); {
-			v := f.Vars[j-1]
-			k, at, best := j, j, math.Inf(1)
-			for ; k < len(c) && f.Vars[k-1].Group == v.Group && f.Vars[k-1].Cell == v.Cell; k++ {
-				if sc := prefScore(k); sc < best {
-					at, best = k, sc
+	// shapeCosts returns the shaped LP's column costs: mu times one
+	// less the probability that the rule of snap gives the column's
+	// choice in its cell (cells that snap has not seen pick as the
+	// offset rule does). Cells of one orbit share columns: the cost is
+	// that of the column's own cell, summed over the members that share
+	// the column.
+	far := make([]int, n)
+	for i := range far {
+		far[i] = tables.Far
+	}
+	shapeCosts := func(snap [][]float64, mu float64) []float64 {
+		c := make([]float64, f.Problem.NumCols())
+		var tmp []float64
+		for i, t := range f.Tables.Tables {
+			m := len(t.Members)
+			cols := f.cols[t.Group]
+			for ci := range t.Cells {
+				p := tmp
+				if (ci+1)*m <= len(snap[i]) {
+					p = snap[i][ci*m : (ci+1)*m]
+				} else {
+					tmp = slices.Grow(tmp[:0], m)[:m]
+					fallback(t, &t.Cells[ci], f.Tables.Half, far, tmp)
+					p = tmp
+				}
+				for k := range m {
+					if col := int(cols[ci*m+k]); col > 0 && int(f.Vars[col-1].Cell) == ci {
+						c[col] += mu * (1 - p[k])
+					}
 				}
 			}
-			for i := j; i < k; i++ {
-				if i != at {
-					c[i] = shapeBias * float64(f.Vars[i-1].Mult)
-				}
-			}
-			j = k
 		}
 		return c
 	}
 	shaper, _ := model.(Shaper)
-	// shaped says the next round is shaped; wasWide that the gap was wide
-	// after the round before this one.
-	shaped, wasWide := false, false
+	// shaped says the next round is shaped; lb is the highest Bayes
+	// risk of a round's prior.
+	shaped, lb := false, 0.0
 
 	res := &CGResult{F: f}
 	// best is the rule with the least worst case found so far: the
@@ -485,7 +513,12 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 			var c []float64
 			var t float64
 			if shaped {
-				c, t = shapeCosts(), shapeTol
+				rel := 1.0
+				if lb > 0 {
+					rel = (best.worst - lb) / lb
+				}
+				t = min(shapeTol, max(1e-11, rel/10))
+				c = shapeCosts(best.snap, shapeBias*min(1, rel/shapeRel))
 			}
 			if err := shaper.SetCosts(c); err != nil {
 				return nil, err
@@ -535,7 +568,14 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 			return nil, err
 		}
 		viol = append(viol, nbrList...)
-		res.Solution, res.Rounds = sol, round
+		// The lower bound: the Bayes risk of the round's prior, exact or
+		// shaped (a shaped round's prior is near the least favourable
+		// one too); the solution whose prior gives the highest is the
+		// certificate's.
+		if pv := f.PriorValue(f.Prior(sol.RowDual)); res.Solution == nil || pv > lb {
+			res.Solution, lb = sol, pv
+		}
+		res.Rounds = round
 		if len(regs) != len(best.regs) {
 			return nil, fmt.Errorf("constraint generation: the evaluator reported %d configurations, then %d", len(best.regs), len(regs))
 		}
@@ -556,7 +596,7 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 			opt.Progress(Progress{Round: round, Configs: f.NumConfigs(), LPValue: value, Shaped: shaped,
 				WorstCase: top, Best: best.worst, Violations: count, Elapsed: time.Since(start)})
 		}
-		if optimal || (!shaped && best.worst <= threshold) {
+		if optimal || best.worst <= lb*(1+tol)+1e-12 {
 			return finish(true)
 		}
 		if len(viol) == 0 && !shaped {
@@ -573,8 +613,10 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 		if err := ctx.Err(); err != nil {
 			return nil, err
 		}
-		shaped = shaper != nil && lam > 0 && wasWide && len(viol) > 0
-		wasWide = lam > 0
+		// After a shaped round without violated configurations an
+		// exact one: its value is the working set's optimum, a lower
+		// bound.
+		shaped = shaper != nil && count > 0
 		add(viol)
 		if p := f.Problem; p.NumCols() > cols {
 			if err := model.AddColumns(p.ColLo[cols:], p.ColUp[cols:], p.Obj[cols:]); err != nil {
@@ -588,6 +630,57 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 		}
 		pending = &lp.Problem{}
 	}
+}
+
+// The core of the initial working set (coreConfigs): every configuration
+// whose values lie within one less than the smallest noise spread of each
+// other, when their rows hold at most about coreNonzeros nonzeros. With
+// narrow noise the least favourable prior weighs such tight
+// configurations, where the channels are hardest to tell apart, and with
+// them the first round's LP value is close to the optimum, a lower bound
+// right from the start. (Five channels with 5-point pmfs: the 2,096
+// configurations within 3 steps give 0.63550 in the first round, against
+// an optimum of 0.63553; without them 0.540, and priors of the shaped
+// rounds no better than 0.629 after 240 s. With wide noise the
+// configurations within a few steps are not enough: four channels with
+// 15-point pmfs, the 641 within 3 steps, gave the same first LP value and
+// 20 s more.)
+const coreNonzeros = 1e7
+
+// coreConfigs returns every configuration, of every subset, whose values
+// span at most w-1 steps, w the smallest noise spread, when their rows
+// hold about budget nonzeros at most (two per point of the subset's
+// difference pmf), and nil otherwise.
+func (f *Formulation) coreConfigs(budget float64) [][]int {
+	l := f.Layout
+	n := l.N()
+	w := l.Hi[0] - l.Lo[0]
+	for i := range l.Lo {
+		w = min(w, l.Hi[i]-l.Lo[i])
+	}
+	s := w - 1
+	if s < 1 {
+		return nil
+	}
+	var core [][]int
+	nz := 0.0
+	for _, q := range tables.Subsets(n) {
+		per := 2 * float64(f.differences(q).Len())
+		tables.Configurations(n, q, s, func(v []int) bool {
+			for _, x := range v {
+				if x != tables.Far && x > s {
+					return true
+				}
+			}
+			core = append(core, slices.Clone(v))
+			nz += per
+			return nz <= budget
+		})
+		if nz > budget {
+			return nil
+		}
+	}
+	return core
 }
 
 // bestMix returns the theta in [0, 1] that minimises the worst case

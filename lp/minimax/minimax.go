@@ -19,6 +19,7 @@ package minimax
 
 import (
 	"fmt"
+	"maps"
 	"math"
 	"slices"
 
@@ -452,6 +453,51 @@ func (f *Formulation) Prior(dual []float64) []float64 {
 		w[i] /= s
 	}
 	return w
+}
+
+// PriorValue returns the Bayes risk, in steps, of prior (one weight per
+// configuration, as Prior returns) over the cells of f: the least expected
+// regret under the prior of any rule, which picks in each cell the choice
+// of least expected regret. Every cell that the prior's configurations
+// reach has columns, so it is a lower bound on the optimum of the
+// working set and of the whole model, computed in floating point (the
+// certificate computes it exactly).
+func (f *Formulation) PriorValue(prior []float64) float64 {
+	p := f.Problem
+	cost := make(map[int]float64)
+	var v float64
+	for k, w := range prior {
+		if w == 0 {
+			continue
+		}
+		row := f.RowOf[k]
+		v -= w * p.RowUp[row]
+		for e := p.RowStart[row]; e < p.RowStart[row+1]; e++ {
+			if j := int(p.Index[e]); j > 0 {
+				cost[j] += w * p.Value[e]
+			}
+		}
+	}
+	// The columns of a cell are consecutive; its least cost per unit of
+	// probability is 0 unless the prior reaches all of them.
+	// (In column order: the sum is the same from run to run.)
+	seen := make(map[int]bool)
+	for _, j := range slices.Sorted(maps.Keys(cost)) {
+		first := j
+		for first > 1 && f.Vars[first-2].Group == f.Vars[j-1].Group && f.Vars[first-2].Cell == f.Vars[j-1].Cell {
+			first--
+		}
+		if seen[first] {
+			continue
+		}
+		seen[first] = true
+		least := math.Inf(1)
+		for c := first; c <= len(f.Vars) && f.Vars[c-1].Group == f.Vars[j-1].Group && f.Vars[c-1].Cell == f.Vars[j-1].Cell; c++ {
+			least = math.Min(least, cost[c]/float64(f.Vars[c-1].Mult))
+		}
+		v += least
+	}
+	return v
 }
 
 // PriorConfigs returns the prior of Prior spread over all configurations:

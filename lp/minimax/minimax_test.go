@@ -15,6 +15,7 @@ import (
 	"github.com/pickwise/pickwise/lp/gonumlp"
 	"github.com/pickwise/pickwise/lp/minimax"
 	"github.com/pickwise/pickwise/tables"
+	"github.com/pickwise/pickwise/tables/exact"
 )
 
 // model builds a discretized model from lattice pmfs given as (lo, weights).
@@ -310,4 +311,63 @@ func TestInvariances(t *testing.T) {
 			}
 		}
 	})
+}
+
+// TestPriorValue: the Bayes risk of a prior computed from the LP's rows
+// agrees with tables/exact's exact Bayes risk of the same prior (an
+// independent computation from the noise pmfs, in rational arithmetic)
+// for random priors, and at the LP's own prior with the LP optimum
+// (strong duality), on a skewed model and on one with two identical
+// channels (rows standing for orbits).
+func TestPriorValue(t *testing.T) {
+	same := []float64{-1, 0.2, 0.5, 0.3}
+	for _, tc := range []struct {
+		name string
+		m    *discretize.Model
+	}{
+		{"skewed", skewedModel(t)},
+		{"two identical channels", model(t, 1, same, same, []float64{0, 0.6, 0.1, 0.3})},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			s := solve(t, tc.m, clp.Solver{PrimalTolerance: 1e-10, DualTolerance: 1e-10})
+			if got, want := s.f.PriorValue(s.f.Prior(s.sol.RowDual)), s.sol.Objective; math.Abs(got-want) > 1e-8*want {
+				t.Errorf("Bayes risk of the LP's prior %.12g, want the LP optimum %.12g", got, want)
+			}
+			rng := rand.New(rand.NewPCG(5, uint64(len(tc.name))))
+			const bits = 40
+			for trial := range 5 {
+				// Dyadic weights on a few rows, so that both sides
+				// weigh exactly the same prior.
+				w := make([]float64, s.f.NumConfigs())
+				for range 6 {
+					w[rng.IntN(len(w))] = rng.Float64()
+				}
+				num, err := exact.SnapWeights(w, bits)
+				if err != nil {
+					t.Fatal(err)
+				}
+				for k := range w {
+					w[k] = float64(num[k]) / (1 << bits)
+				}
+				// As a dual vector: one entry per row, the negated weight.
+				dual := make([]float64, s.f.Problem.NumRows())
+				for k, row := range s.f.RowOf {
+					dual[row] = -w[k]
+				}
+				configs, weights := s.f.PriorConfigs(dual)
+				wq, err := exact.SnapWeights(weights, bits)
+				if err != nil {
+					t.Fatal(err)
+				}
+				br, err := exact.BayesRisk(s.l, configs, wq, bits)
+				if err != nil {
+					t.Fatal(err)
+				}
+				want, _ := br.Float64()
+				if got := s.f.PriorValue(s.f.Prior(dual)); math.Abs(got-want) > 1e-11*math.Max(want, 1) {
+					t.Errorf("trial %d: PriorValue %.15g, exact Bayes risk %.15g", trial, got, want)
+				}
+			}
+		})
+	}
 }
