@@ -106,9 +106,9 @@ type CGResult struct {
 	// converged on it, otherwise the mixture of the rounds' rules and
 	// the highest reading with the least worst case.
 	F *Formulation
-	// Solution is the LP solution of the exact round (not shaped, see
-	// Shaper) with the highest value: its duals give the best prior
-	// found.
+	// Solution is the LP solution of the round, exact or shaped (see
+	// Shaper), whose prior has the highest Bayes risk
+	// (Formulation.PriorValue): its duals give the best prior found.
 	Solution *lp.Solution
 	// WorstCase is the fast evaluator's worst case of the rule in F's
 	// tables, in steps.
@@ -155,10 +155,10 @@ type Shaper interface {
 // version of the working set's LP: minimise t plus a cost of mu steps per
 // unit of probability that a cell moves away from the best rule so far
 // (per column, mu times one less the best rule's probability of that
-// choice), to a relative tolerance of a tenth of the gap between the best
-// rule's worst case and the LP value of the last exact round, at most
-// shapeTol. mu is shapeBias while that gap is over shapeRel of the LP
-// value and shrinks with it below: the best rule is randomised in some
+// choice), to a relative tolerance of a tenth of the relative gap between
+// the best rule's worst case and the lower bound (below), at most
+// shapeTol. mu is shapeBias while that gap is over shapeRel of the bound
+// and shrinks with it below: the best rule is randomised in some
 // cells, which the linear cost pulls towards their likelier choice, and
 // that pull must fade for the best rule to reach the optimum.
 //
@@ -177,7 +177,8 @@ type Shaper interface {
 // lower bound is the Bayes risk of a round's prior (Formulation.PriorValue),
 // exact or shaped, and the solution whose prior gives the highest is the
 // one returned (the certificate's prior). A round is exact when the round
-// before was shaped and found no violated configuration: its value is the
+// before was shaped and found no violated configuration, or narrowed a
+// small gap too little (see the end of the loop): its value is the
 // working set's optimum. The loop ends when the best rule's worst case is
 // within the tolerance of the lower bound, or an exact round's rule is
 // optimal.
@@ -457,36 +458,19 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 
 	// shapeCosts returns the shaped LP's column costs: mu times one
 	// less the probability that the rule of snap gives the column's
-	// choice in its cell (cells that snap has not seen pick as the
-	// offset rule does). Cells of one orbit share columns: the cost is
-	// that of the column's own cell, summed over the members that share
-	// the column.
-	far := make([]int, n)
-	for i := range far {
-		far[i] = tables.Far
-	}
+	// choice in its cell (see eachSnapped for cells that snap has not
+	// seen). Cells of one orbit share columns: the cost is that of the
+	// column's own cell, summed over the members that share the column.
 	shapeCosts := func(snap [][]float64, mu float64) []float64 {
 		c := make([]float64, f.Problem.NumCols())
-		var tmp []float64
-		for i, t := range f.Tables.Tables {
-			m := len(t.Members)
-			cols := f.cols[t.Group]
-			for ci := range t.Cells {
-				p := tmp
-				if (ci+1)*m <= len(snap[i]) {
-					p = snap[i][ci*m : (ci+1)*m]
-				} else {
-					tmp = slices.Grow(tmp[:0], m)[:m]
-					fallback(t, &t.Cells[ci], f.Tables.Half, far, tmp)
-					p = tmp
-				}
-				for k := range m {
-					if col := int(cols[ci*m+k]); col > 0 && int(f.Vars[col-1].Cell) == ci {
-						c[col] += mu * (1 - p[k])
-					}
+		f.eachSnapped(snap, func(t *tables.Table, ci int, p []float64) {
+			cols := f.cols[t.Group][ci*len(t.Members):]
+			for k := range t.Members {
+				if col := int(cols[k]); col > 0 && int(f.Vars[col-1].Cell) == ci {
+					c[col] += mu * (1 - p[k])
 				}
 			}
-		}
+		})
 		return c
 	}
 	shaper, _ := model.(Shaper)

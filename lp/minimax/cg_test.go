@@ -292,9 +292,8 @@ func TestCGNoFalseConvergence(t *testing.T) {
 // TestCGShaped: with lp/dw (a minimax.Shaper) the rounds after the first
 // are shaped until one finds no violated configuration, and the loop
 // still converges to the optimum of the direct LP solved by CLP: the
-// solution it returns (the certificate's prior) is that of an exact
-// round, whose value is the optimum, and the best rule's worst case is
-// that value.
+// value of the solution it returns (the certificate's prior) and the best
+// rule's worst case are that optimum.
 func TestCGShaped(t *testing.T) {
 	for _, tc := range []struct {
 		name  string

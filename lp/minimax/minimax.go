@@ -375,11 +375,12 @@ func (f *Formulation) snapshot() [][]float64 {
 	return out
 }
 
-// eachSnapped calls fn for every cell of f's tables with the cell's
-// probabilities in snap, a snapshot of the same tables taken when they
-// may have had fewer cells: cells added since pick as a table without
-// them would, as they did when the snapshot's rule was evaluated.
-func (f *Formulation) eachSnapped(snap [][]float64, fn func(cell *tables.Cell, p []float64)) {
+// eachSnapped calls fn for every cell of f's tables (table t, cell index
+// ci) with the cell's probabilities in snap, a snapshot of the same tables
+// taken when they may have had fewer cells: cells added since pick as a
+// table without them would, as they did when the snapshot's rule was
+// evaluated.
+func (f *Formulation) eachSnapped(snap [][]float64, fn func(t *tables.Table, ci int, p []float64)) {
 	r := make([]int, f.Layout.N())
 	for i := range r {
 		r[i] = tables.Far
@@ -388,14 +389,13 @@ func (f *Formulation) eachSnapped(snap [][]float64, fn func(cell *tables.Cell, p
 	for i, t := range f.Tables.Tables {
 		m := len(t.Members)
 		for ci := range t.Cells {
-			cell := &t.Cells[ci]
 			if (ci+1)*m <= len(snap[i]) {
-				fn(cell, snap[i][ci*m:(ci+1)*m])
+				fn(t, ci, snap[i][ci*m:(ci+1)*m])
 				continue
 			}
 			tmp = slices.Grow(tmp[:0], m)[:m]
-			fallback(t, cell, f.Tables.Half, r, tmp)
-			fn(cell, tmp)
+			fallback(t, &t.Cells[ci], f.Tables.Half, r, tmp)
+			fn(t, ci, tmp)
 		}
 	}
 }
@@ -403,7 +403,7 @@ func (f *Formulation) eachSnapped(snap [][]float64, fn func(cell *tables.Cell, p
 // restore sets the probabilities of f's tables to those of snap (see
 // eachSnapped).
 func (f *Formulation) restore(snap [][]float64) {
-	f.eachSnapped(snap, func(cell *tables.Cell, p []float64) { copy(cell.P, p) })
+	f.eachSnapped(snap, func(t *tables.Table, ci int, p []float64) { copy(t.Cells[ci].P, p) })
 }
 
 // mix sets f's tables to the rule that follows their rule with
@@ -412,7 +412,8 @@ func (f *Formulation) restore(snap [][]float64) {
 // mixture's regret at every configuration is theta times the first
 // rule's plus 1-theta times the second's.
 func (f *Formulation) mix(snap [][]float64, theta float64) [][]float64 {
-	f.eachSnapped(snap, func(cell *tables.Cell, p []float64) {
+	f.eachSnapped(snap, func(t *tables.Table, ci int, p []float64) {
+		cell := &t.Cells[ci]
 		for k := range cell.P {
 			cell.P[k] = theta*cell.P[k] + (1-theta)*p[k]
 		}
@@ -479,21 +480,24 @@ func (f *Formulation) PriorValue(prior []float64) float64 {
 		}
 	}
 	// The columns of a cell are consecutive; its least cost per unit of
-	// probability is 0 unless the prior reaches all of them.
-	// (In column order: the sum is the same from run to run.)
-	seen := make(map[int]bool)
+	// probability is 0 unless the prior reaches all of them. Cells are
+	// taken in column order, each once (the sum is the same from run to
+	// run).
+	same := func(a, b int) bool {
+		return f.Vars[a-1].Group == f.Vars[b-1].Group && f.Vars[a-1].Cell == f.Vars[b-1].Cell
+	}
+	end := 0 // the first column past the last cell summed
 	for _, j := range slices.Sorted(maps.Keys(cost)) {
-		first := j
-		for first > 1 && f.Vars[first-2].Group == f.Vars[j-1].Group && f.Vars[first-2].Cell == f.Vars[j-1].Cell {
-			first--
-		}
-		if seen[first] {
+		if j < end {
 			continue
 		}
-		seen[first] = true
+		first := j
+		for first > 1 && same(first-1, j) {
+			first--
+		}
 		least := math.Inf(1)
-		for c := first; c <= len(f.Vars) && f.Vars[c-1].Group == f.Vars[j-1].Group && f.Vars[c-1].Cell == f.Vars[j-1].Cell; c++ {
-			least = math.Min(least, cost[c]/float64(f.Vars[c-1].Mult))
+		for end = first; end <= len(f.Vars) && same(end, j); end++ {
+			least = math.Min(least, cost[end]/float64(f.Vars[end-1].Mult))
 		}
 		v += least
 	}
