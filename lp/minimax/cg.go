@@ -158,9 +158,16 @@ type Shaper interface {
 // choice), to a relative tolerance of a tenth of the relative gap between
 // the best rule's worst case and the lower bound (below), at most
 // shapeTol. mu is shapeBias while that gap is over shapeRel of the bound
-// and shrinks with it below: the best rule is randomised in some
-// cells, which the linear cost pulls towards their likelier choice, and
-// that pull must fade for the best rule to reach the optimum.
+// and shrinks with it below, but only in the cells that the prior of the
+// last exact round reaches (Formulation.reachedColumns); elsewhere it
+// stays shapeBias. The best rule is randomised in some cells, which the
+// linear cost pulls towards their likelier choice, and that pull must
+// fade for the best rule to reach the optimum; but the optimum need not be
+// randomised where a least favourable prior does not reach (every
+// minimax rule is a Bayes rule of every least favourable prior, and only
+// in the cells it reaches), and there a faded cost left the rounds' rules
+// free to move cells for the slightest gain on the working set, at a
+// large cost to the configurations outside it. SPLITNOTE
 //
 // The LP over a working set has a vast set of optimal rules, and an
 // optimal vertex takes, in cells that the prior's configurations reach
@@ -456,18 +463,26 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 	}
 	pending = &lp.Problem{}
 
-	// shapeCosts returns the shaped LP's column costs: mu times one
-	// less the probability that the rule of snap gives the column's
-	// choice in its cell (see eachSnapped for cells that snap has not
-	// seen). Cells of one orbit share columns: the cost is that of the
-	// column's own cell, summed over the members that share the column.
-	shapeCosts := func(snap [][]float64, mu float64) []float64 {
+	// reached marks the columns of the cells that the prior of the last
+	// exact round reaches (see Formulation.reachedColumns).
+	var reached []bool
+	// shapeCosts returns the shaped LP's column costs: mu, or far in the
+	// cells that reached does not mark, times one less the probability
+	// that the rule of snap gives the column's choice in its cell (see
+	// eachSnapped for cells that snap has not seen). Cells of one orbit
+	// share columns: the cost is that of the column's own cell, summed
+	// over the members that share the column.
+	shapeCosts := func(snap [][]float64, mu, far float64) []float64 {
 		c := make([]float64, f.Problem.NumCols())
 		f.eachSnapped(snap, func(t *tables.Table, ci int, p []float64) {
 			cols := f.cols[t.Group][ci*len(t.Members):]
 			for k := range t.Members {
 				if col := int(cols[k]); col > 0 && int(f.Vars[col-1].Cell) == ci {
-					c[col] += mu * (1 - p[k])
+					w := far
+					if col < len(reached) && reached[col] {
+						w = mu
+					}
+					c[col] += w * (1 - p[k])
 				}
 			}
 		})
@@ -508,7 +523,7 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 					rel = (best.worst - lb) / lb
 				}
 				t = min(shapeTol, max(1e-11, rel/10))
-				c = shapeCosts(best.snap, shapeBias*min(1, rel/shapeRel))
+				c = shapeCosts(best.snap, shapeBias*min(1, rel/shapeRel), shapeBias)
 			}
 			if err := shaper.SetCosts(c); err != nil {
 				return nil, err
@@ -562,6 +577,9 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 		// shaped (a shaped round's prior is near the least favourable
 		// one too); the solution whose prior gives the highest is the
 		// certificate's.
+		if !shaped {
+			reached = f.reachedColumns(f.Prior(sol.RowDual))
+		}
 		if pv := f.PriorValue(f.Prior(sol.RowDual)); res.Solution == nil || pv > lb {
 			res.Solution, lb = sol, pv
 		}

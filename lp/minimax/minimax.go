@@ -504,6 +504,39 @@ func (f *Formulation) PriorValue(prior []float64) float64 {
 	return v
 }
 
+// reachedColumns reports, per column, whether a configuration that prior
+// (one weight per configuration, as Prior returns) weighs has an entry in
+// a column of the column's cell: the cells where the prior's Bayes rules
+// are decided. Other cells are free as far as the prior is concerned.
+func (f *Formulation) reachedColumns(prior []float64) []bool {
+	p := f.Problem
+	out := make([]bool, p.NumCols())
+	for k, w := range prior {
+		if w == 0 {
+			continue
+		}
+		row := f.RowOf[k]
+		for e := p.RowStart[row]; e < p.RowStart[row+1]; e++ {
+			if j := int(p.Index[e]); j > 0 {
+				out[j] = true
+			}
+		}
+	}
+	// The columns of a cell are consecutive: spread each mark over its
+	// cell.
+	for j := 1; j < len(out); {
+		end, any := j, false
+		for ; end < len(out) && f.Vars[end-1].Group == f.Vars[j-1].Group && f.Vars[end-1].Cell == f.Vars[j-1].Cell; end++ {
+			any = any || out[end]
+		}
+		for i := j; i < end; i++ {
+			out[i] = any
+		}
+		j = end
+	}
+	return out
+}
+
 // PriorConfigs returns the prior of Prior spread over all configurations:
 // with a symmetry, the weight of each row is shared equally by the
 // configurations of its orbit (the prior the rows stand for, which the

@@ -1,7 +1,10 @@
 package minimax
 
 import (
+	"math"
+	"math/rand/v2"
 	"reflect"
+	"slices"
 	"testing"
 
 	"github.com/pickwise/pickwise/discretize"
@@ -89,4 +92,112 @@ func canonical(f *Formulation, v []int) []int {
 	w := make([]int, len(v))
 	f.sym.canonConfig(v, w)
 	return w
+}
+
+// TestReachedColumns: the cells that reachedColumns marks for a prior are
+// those found by walking every noise outcome of the prior's configurations
+// through the tables (tables.Optimal.Locate on the readings, the joint
+// outcomes from each channel's own pmf): cells where some alive choice has
+// a regret. Every column of a cell gets its cell's mark.
+func TestReachedColumns(t *testing.T) {
+	pmf := func(lo int, p ...float64) discretize.PMF {
+		q, err := discretize.Quantize(lo, p)
+		if err != nil {
+			t.Fatal(err)
+		}
+		return q
+	}
+	m := &discretize.Model{Step: 1}
+	for i, p := range []discretize.PMF{pmf(-2, 0.11, 0.16, 0.2, 0.19, 0.34), pmf(0, 0.28, 0.1, 0.08, 0.26, 0.28), pmf(-1, 0.5, 0.2, 0.3)} {
+		m.Channels = append(m.Channels, discretize.Channel{Name: string(rune('A' + i)), Kind: "pmf", PMF: p})
+	}
+	l, err := tables.NewLayout(m)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var vs [][]int
+	for _, q := range tables.Subsets(l.N()) {
+		tables.Configurations(l.N(), q, l.D, func(v []int) bool {
+			vs = append(vs, append([]int(nil), v...))
+			return true
+		})
+	}
+	f := newFormulation(l, true)
+	f.addRegretRows(vs, nil)
+	f.addCellRowsFrom(1, nil)
+	// The prior weighs configurations of spread 4 steps at most: wider
+	// ones reach few cells.
+	var tight []int
+	for k := range f.NumConfigs() {
+		v := f.Config(k)
+		lo, hi := math.MaxInt, math.MinInt
+		for _, x := range v {
+			if x != tables.Far {
+				lo, hi = min(lo, x), max(hi, x)
+			}
+		}
+		if hi-lo <= 4 {
+			tight = append(tight, k)
+		}
+	}
+	rng := rand.New(rand.NewPCG(3, 8))
+	for trial := range 4 {
+		prior := make([]float64, f.NumConfigs())
+		for range 1 + trial*3 {
+			prior[tight[rng.IntN(len(tight))]] = 1
+		}
+		type cellKey struct {
+			g    tables.Set
+			cell int
+		}
+		want := make(map[cellKey]bool)
+		r := make([]int, l.N())
+		for k, w := range prior {
+			if w == 0 {
+				continue
+			}
+			v := f.Config(k)
+			top := slices.Max(v)
+			// Every joint outcome of the channels in the subset.
+			var walk func(i int, prob float64)
+			walk = func(i int, prob float64) {
+				if i == l.N() {
+					_, alive, tb, ci := f.Tables.Locate(r)
+					if tb == nil || ci < 0 || prob == 0 {
+						return
+					}
+					for _, ch := range tb.Members {
+						if alive.Has(ch) && v[ch] != top {
+							want[cellKey{tb.Group, ci}] = true
+						}
+					}
+					return
+				}
+				if v[i] == tables.Far {
+					r[i] = tables.Far
+					walk(i+1, prob)
+					return
+				}
+				for e := l.Lo[i]; e <= l.Hi[i]; e++ {
+					r[i] = v[i] + e
+					walk(i+1, prob*l.P[i][e-l.Lo[i]])
+				}
+			}
+			walk(0, 1)
+		}
+		got := f.reachedColumns(prior)
+		marked := 0
+		for j := 1; j < len(got); j++ {
+			vr := f.Vars[j-1]
+			if w := want[cellKey{vr.Group, int(vr.Cell)}]; got[j] != w {
+				t.Errorf("trial %d: column %d (group %v, cell %d): reached %v, want %v", trial, j, vr.Group, vr.Cell, got[j], w)
+			}
+			if got[j] {
+				marked++
+			}
+		}
+		if marked == 0 || marked == len(got)-1 {
+			t.Errorf("trial %d: %d of %d columns marked", trial, marked, len(got)-1)
+		}
+	}
 }
