@@ -167,7 +167,20 @@ type Shaper interface {
 // minimax rule is a Bayes rule of every least favourable prior, and only
 // in the cells it reaches), and there a faded cost left the rounds' rules
 // free to move cells for the slightest gain on the working set, at a
-// large cost to the configurations outside it. SPLITNOTE
+// large cost to the configurations outside it. (Five channels with
+// 5-point pmfs, one terminal run of 10 minutes each: a certified gap of
+// 4.5e-6 steps instead of 1.2e-5; after 5 minutes the best rule at
+// 0.63557 instead of 0.63570, the rounds' rules within 0.005 of it
+// instead of up to 0.04; the same rounds to 4 minutes. Three channels of
+// normal noise: 13 rounds and 15 s instead of 16 and 19 s; four channels
+// with 15-point pmfs unchanged; two random four-channel models with
+// 7-point pmfs: 7 rounds instead of 8 and 12, 8.8 s and 6.5 s instead of
+// 8.2 s and 8.1 s; five random channels with 3-point pmfs, whose gap
+// stays over 1% for 150 s, unchanged. Tried and not kept, on five
+// channels: making the non-Bayes columns of the cells such a prior
+// reaches dear (the working set's LP grew slow), and giving the best
+// rule's probabilities to the cells the round's prior does not reach
+// (worse rules in every round).)
 //
 // The LP over a working set has a vast set of optimal rules, and an
 // optimal vertex takes, in cells that the prior's configurations reach
