@@ -593,10 +593,11 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 		// shaped (a shaped round's prior is near the least favourable
 		// one too); the solution whose prior gives the highest is the
 		// certificate's.
+		prior := f.Prior(sol.RowDual)
 		if !shaped {
-			reached = f.reachedColumns(f.Prior(sol.RowDual))
+			reached = f.reachedColumns(prior)
 		}
-		if pv := f.PriorValue(f.Prior(sol.RowDual)); res.Solution == nil || pv > lb {
+		if pv := f.PriorValue(prior); res.Solution == nil || pv > lb {
 			res.Solution, lb = sol, pv
 		}
 		res.Rounds = round

@@ -290,10 +290,9 @@ func (f *Formulation) addCellRowsFrom(first int, also *lp.Problem) {
 	var idx []int
 	var val []float64
 	for j := first; j < p.NumCols(); {
-		v := f.Vars[j-1]
 		k := j
 		idx, val = idx[:0], val[:0]
-		for k < p.NumCols() && f.Vars[k-1].Group == v.Group && f.Vars[k-1].Cell == v.Cell {
+		for k < p.NumCols() && f.sameCell(k, j) {
 			idx = append(idx, k)
 			val = append(val, float64(f.Vars[k-1].Mult))
 			k++
@@ -483,25 +482,28 @@ func (f *Formulation) PriorValue(prior []float64) float64 {
 	// probability is 0 unless the prior reaches all of them. Cells are
 	// taken in column order, each once (the sum is the same from run to
 	// run).
-	same := func(a, b int) bool {
-		return f.Vars[a-1].Group == f.Vars[b-1].Group && f.Vars[a-1].Cell == f.Vars[b-1].Cell
-	}
 	end := 0 // the first column past the last cell summed
 	for _, j := range slices.Sorted(maps.Keys(cost)) {
 		if j < end {
 			continue
 		}
 		first := j
-		for first > 1 && same(first-1, j) {
+		for first > 1 && f.sameCell(first-1, j) {
 			first--
 		}
 		least := math.Inf(1)
-		for end = first; end <= len(f.Vars) && same(end, j); end++ {
+		for end = first; end <= len(f.Vars) && f.sameCell(end, j); end++ {
 			least = math.Min(least, cost[end]/float64(f.Vars[end-1].Mult))
 		}
 		v += least
 	}
 	return v
+}
+
+// sameCell reports whether columns a and b (both past t) belong to the same
+// cell. The columns of a cell are consecutive.
+func (f *Formulation) sameCell(a, b int) bool {
+	return f.Vars[a-1].Group == f.Vars[b-1].Group && f.Vars[a-1].Cell == f.Vars[b-1].Cell
 }
 
 // reachedColumns reports, per column, whether a configuration that prior
@@ -526,7 +528,7 @@ func (f *Formulation) reachedColumns(prior []float64) []bool {
 	// cell.
 	for j := 1; j < len(out); {
 		end, any := j, false
-		for ; end < len(out) && f.Vars[end-1].Group == f.Vars[j-1].Group && f.Vars[end-1].Cell == f.Vars[j-1].Cell; end++ {
+		for ; end < len(out) && f.sameCell(end, j); end++ {
 			any = any || out[end]
 		}
 		for i := j; i < end; i++ {

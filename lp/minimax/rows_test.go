@@ -16,36 +16,16 @@ import (
 // the same formulation, bit for bit (cells, columns, rows, coefficients),
 // as rows added one configuration at a time, with and without a symmetry.
 func TestAddRegretRowsMatchesOneByOne(t *testing.T) {
-	pmf := func(lo int, p ...float64) discretize.PMF {
-		q, err := discretize.Quantize(lo, p)
-		if err != nil {
-			t.Fatal(err)
-		}
-		return q
-	}
 	for _, tc := range []struct {
 		name string
-		pmfs []discretize.PMF
+		pmfs [][]float64
 	}{
-		{"skewed", []discretize.PMF{pmf(-3, 0.11, 0.16, 0.2, 0.19, 0.34), pmf(0, 0.28, 0.1, 0.08, 0.26, 0.28), pmf(-3, 0.15, 0.16, 0.48, 0.08, 0.13)}},
-		{"two identical", []discretize.PMF{pmf(-1, 0.2, 0.5, 0.3), pmf(-1, 0.2, 0.5, 0.3), pmf(0, 0.6, 0.4)}},
+		{"skewed", [][]float64{{-3, 0.11, 0.16, 0.2, 0.19, 0.34}, {0, 0.28, 0.1, 0.08, 0.26, 0.28}, {-3, 0.15, 0.16, 0.48, 0.08, 0.13}}},
+		{"two identical", [][]float64{{-1, 0.2, 0.5, 0.3}, {-1, 0.2, 0.5, 0.3}, {0, 0.6, 0.4}}},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
-			m := &discretize.Model{Step: 1}
-			for i, p := range tc.pmfs {
-				m.Channels = append(m.Channels, discretize.Channel{Name: string(rune('A' + i)), Kind: "pmf", PMF: p})
-			}
-			l, err := tables.NewLayout(m)
-			if err != nil {
-				t.Fatal(err)
-			}
-			var vs [][]int
-			for _, q := range tables.Subsets(l.N()) {
-				tables.Configurations(l.N(), q, l.D, func(v []int) bool {
-					vs = append(vs, append([]int(nil), v...))
-					return true
-				})
-			}
+			l := pmfLayout(t, tc.pmfs...)
+			vs := allConfigs(l)
 			// Interleave the subsets so that batches mix them.
 			for i := range vs {
 				j := (i * 7919) % len(vs)
@@ -84,6 +64,37 @@ func TestAddRegretRowsMatchesOneByOne(t *testing.T) {
 	}
 }
 
+// pmfLayout returns the layout of a model at step 1 whose channels have
+// the lattice pmfs given as (lowest point, weights...).
+func pmfLayout(t *testing.T, pmfs ...[]float64) *tables.Layout {
+	t.Helper()
+	m := &discretize.Model{Step: 1}
+	for i, p := range pmfs {
+		q, err := discretize.Quantize(int(p[0]), p[1:])
+		if err != nil {
+			t.Fatal(err)
+		}
+		m.Channels = append(m.Channels, discretize.Channel{Name: string(rune('A' + i)), Kind: "pmf", PMF: q})
+	}
+	l, err := tables.NewLayout(m)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return l
+}
+
+// allConfigs returns every configuration of l, subset by subset.
+func allConfigs(l *tables.Layout) [][]int {
+	var vs [][]int
+	for _, q := range tables.Subsets(l.N()) {
+		tables.Configurations(l.N(), q, l.D, func(v []int) bool {
+			vs = append(vs, append([]int(nil), v...))
+			return true
+		})
+	}
+	return vs
+}
+
 // canonical returns the configuration whose row stands for v's orbit.
 func canonical(f *Formulation, v []int) []int {
 	if f.sym == nil {
@@ -100,30 +111,9 @@ func canonical(f *Formulation, v []int) []int {
 // outcomes from each channel's own pmf): cells where some alive choice has
 // a regret. Every column of a cell gets its cell's mark.
 func TestReachedColumns(t *testing.T) {
-	pmf := func(lo int, p ...float64) discretize.PMF {
-		q, err := discretize.Quantize(lo, p)
-		if err != nil {
-			t.Fatal(err)
-		}
-		return q
-	}
-	m := &discretize.Model{Step: 1}
-	for i, p := range []discretize.PMF{pmf(-2, 0.11, 0.16, 0.2, 0.19, 0.34), pmf(0, 0.28, 0.1, 0.08, 0.26, 0.28), pmf(-1, 0.5, 0.2, 0.3)} {
-		m.Channels = append(m.Channels, discretize.Channel{Name: string(rune('A' + i)), Kind: "pmf", PMF: p})
-	}
-	l, err := tables.NewLayout(m)
-	if err != nil {
-		t.Fatal(err)
-	}
-	var vs [][]int
-	for _, q := range tables.Subsets(l.N()) {
-		tables.Configurations(l.N(), q, l.D, func(v []int) bool {
-			vs = append(vs, append([]int(nil), v...))
-			return true
-		})
-	}
+	l := pmfLayout(t, []float64{-2, 0.11, 0.16, 0.2, 0.19, 0.34}, []float64{0, 0.28, 0.1, 0.08, 0.26, 0.28}, []float64{-1, 0.5, 0.2, 0.3})
 	f := newFormulation(l, true)
-	f.addRegretRows(vs, nil)
+	f.addRegretRows(allConfigs(l), nil)
 	f.addCellRowsFrom(1, nil)
 	// The prior weighs configurations of spread 4 steps at most: wider
 	// ones reach few cells.
