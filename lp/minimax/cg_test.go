@@ -290,7 +290,8 @@ func TestCGNoFalseConvergence(t *testing.T) {
 }
 
 // TestCGShaped: with lp/dw (a minimax.Shaper) the rounds after the first
-// are shaped until one finds no violated configuration, and the loop
+// (and the first too when it is split: solved exactly for the bound, then
+// shaped) are shaped until one finds no violated configuration, and the loop
 // still converges to the optimum of the direct LP solved by CLP: the
 // value of the solution it returns (the certificate's prior) and the best
 // rule's worst case are that optimum.
@@ -298,18 +299,23 @@ func TestCGShaped(t *testing.T) {
 	for _, tc := range []struct {
 		name  string
 		batch int
+		split bool // the first round solved exactly, then shaped
 	}{
-		{"batch 1", 1},
-		{"batch 2", 2},
+		{"batch 1", 1, false},
+		{"batch 2", 2, false},
+		{"batch 2, first round split", 2, true},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			m := skewedModel(t)
 			direct := solve(t, m, clp.Solver{PrimalTolerance: 1e-9, DualTolerance: 1e-9})
 			l := direct.l
 			var shaped []bool
-			opt := minimax.CGOptions{Batch: tc.batch, Half: l.OffsetHalfSteps(), Radius: -1, Progress: func(p minimax.Progress) {
+			opt := minimax.CGOptions{Batch: tc.batch, Half: l.OffsetHalfSteps(), Radius: -1, SplitFirst: -1, Progress: func(p minimax.Progress) {
 				shaped = append(shaped, p.Shaped)
 			}}
+			if tc.split {
+				opt.SplitFirst = 1
+			}
 			newModel := func(p *lp.Problem) (minimax.Incremental, error) { return dw.New(p) }
 			res, err := minimax.SolveCG(context.Background(), l, newModel, opt)
 			if err != nil {
@@ -319,8 +325,8 @@ func TestCGShaped(t *testing.T) {
 			if !slices.Contains(shaped, true) {
 				t.Fatal("no round was shaped: the model does not test shaping")
 			}
-			if shaped[0] {
-				t.Error("the first round was shaped")
+			if shaped[0] != tc.split {
+				t.Errorf("the first round shaped %v, want %v", shaped[0], tc.split)
 			}
 			if !res.Converged {
 				t.Fatal("constraint generation did not converge")
