@@ -591,6 +591,20 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 		}
 		return nil, fmt.Errorf("constraint generation, round %d (%d configurations): %w", round, f.NumConfigs(), err)
 	}
+	// bound takes the lower bound of a solution: the Bayes risk of its
+	// prior, exact or shaped (a shaped round's prior is near the least
+	// favourable one too); the solution whose prior gives the highest is
+	// the certificate's. An exact solution's prior also marks the
+	// reached cells.
+	bound := func(sol *lp.Solution, exact bool) {
+		prior := f.Prior(sol.RowDual)
+		if exact {
+			reached = f.reachedColumns(prior)
+		}
+		if pv := f.PriorValue(prior); res.Solution == nil || pv > lb {
+			res.Solution, lb = sol, pv
+		}
+	}
 	split := opt.SplitFirst
 	if split == 0 {
 		split = splitConfigs
@@ -602,13 +616,14 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 			// prior reaches, then again shaped around the best rule
 			// (the offset rule, or the highest reading), and goes on
 			// with the shaped rule (see splitConfigs).
+			if err := setShape(false); err != nil {
+				return nil, err
+			}
 			sol, err := solveBy(ctx, model, opt.Deadline)
 			if err != nil {
 				return failed(round, err)
 			}
-			prior := f.Prior(sol.RowDual)
-			reached = f.reachedColumns(prior)
-			res.Solution, lb = sol, f.PriorValue(prior)
+			bound(sol, true)
 			shaped = true
 		}
 		if err := setShape(shaped); err != nil {
@@ -648,17 +663,7 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 			return nil, err
 		}
 		viol = append(viol, nbrList...)
-		// The lower bound: the Bayes risk of the round's prior, exact or
-		// shaped (a shaped round's prior is near the least favourable
-		// one too); the solution whose prior gives the highest is the
-		// certificate's.
-		prior := f.Prior(sol.RowDual)
-		if !shaped {
-			reached = f.reachedColumns(prior)
-		}
-		if pv := f.PriorValue(prior); res.Solution == nil || pv > lb {
-			res.Solution, lb = sol, pv
-		}
+		bound(sol, !shaped)
 		res.Rounds = round
 		if len(regs) != len(best.regs) {
 			return nil, fmt.Errorf("constraint generation: the evaluator reported %d configurations, then %d", len(best.regs), len(regs))
