@@ -77,9 +77,9 @@ func TestTableKeys(t *testing.T) {
 	}
 }
 
-// TestFallback checks the channel a missing cell picks, worked by hand:
-// the highest 2*r_i + half_i among the alive channels, the lowest-numbered
-// on a tie.
+// TestFallback checks the channels a missing cell picks from, worked by
+// hand: those of highest 2*r_i + half_i among the alive channels, all of
+// them on a tie.
 func TestFallback(t *testing.T) {
 	far := Far
 	for _, tc := range []struct {
@@ -87,20 +87,53 @@ func TestFallback(t *testing.T) {
 		alive Set
 		r     []int
 		half  []int
-		want  int
+		want  Set
 	}{
-		{"highest reading", 0b111, []int{0, 3, 2}, nil, 1},
-		{"tie to the lowest-numbered", 0b111, []int{4, 1, 4}, nil, 0},
-		{"dead channel skipped", 0b101, []int{0, 3, 2}, nil, 2},
-		{"offset overtakes", 0b111, []int{0, 3, 2}, []int{0, 0, 3}, 2},                     // 2*3 = 6 < 2*2+3 = 7
-		{"half step decides", 0b011, []int{5, 4, far}, []int{-2, 1, 0}, 1},                 // 8 < 9
-		{"offset tie to the lowest-numbered", 0b011, []int{5, 4, far}, []int{-1, 1, 0}, 0}, // 9 = 9
-		{"negative offset", 0b111, []int{1, 0, -1}, []int{-3, 0, 0}, 1},
-		{"one alive channel", 0b100, []int{9, 9, 0}, []int{9, 9, 0}, 2},
+		{"highest reading", 0b111, []int{0, 3, 2}, nil, 0b010},
+		{"tie shared", 0b111, []int{4, 1, 4}, nil, 0b101},
+		{"three-way tie", 0b111, []int{4, 4, 4}, nil, 0b111},
+		{"dead channel skipped", 0b101, []int{0, 3, 2}, nil, 0b100},
+		{"dead channel not in the tie", 0b011, []int{4, 4, 4}, nil, 0b011},
+		{"offset overtakes", 0b111, []int{0, 3, 2}, []int{0, 0, 3}, 0b100},     // 2*3 = 6 < 2*2+3 = 7
+		{"half step decides", 0b011, []int{5, 4, far}, []int{-2, 1, 0}, 0b010}, // 8 < 9
+		{"offset tie shared", 0b011, []int{5, 4, far}, []int{-1, 1, 0}, 0b011}, // 9 = 9
+		{"negative offset", 0b111, []int{1, 0, -1}, []int{-3, 0, 0}, 0b010},
+		{"one alive channel", 0b100, []int{9, 9, 0}, []int{9, 9, 0}, 0b100},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			if got := Fallback(tc.alive, tc.r, tc.half); got != tc.want {
-				t.Errorf("Fallback(%b, %v, %v) = %d, want %d", tc.alive, tc.r, tc.half, got, tc.want)
+				t.Errorf("Fallback(%b, %v, %v) = %b, want %b", tc.alive, tc.r, tc.half, got, tc.want)
+			}
+		})
+	}
+}
+
+// TestMissingCellProbs: at readings without a cell, Optimal.Probs shares
+// a tie of Fallback equally (by hand: two-point noise on {0, 1} for every
+// channel: a channel is certainly below another read more than one step
+// higher).
+func TestMissingCellProbs(t *testing.T) {
+	l := &Layout{Lo: []int{0, 0, 0}, Hi: []int{1, 1, 1}, P: [][]float64{{0.5, 0.5}, {0.5, 0.5}, {0.5, 0.5}}, G: 2, S: 1, T: 3, D: 4}
+	o := NewOptimal(l)
+	for _, tc := range []struct {
+		name string
+		half []int
+		r    []int
+		want []float64
+	}{
+		{"three-way tie", nil, []int{0, 0, 0}, []float64{1.0 / 3, 1.0 / 3, 1.0 / 3}},
+		{"two-way tie", nil, []int{0, 1, 1}, []float64{0, 0.5, 0.5}},
+		{"highest", nil, []int{1, 0, 0}, []float64{1, 0, 0}},
+		{"offsets break the tie", []int{1, -2, 0}, []int{0, 0, 0}, []float64{1, 0, 0}},      // scores 1, -2, 0
+		{"offsets make a tie", []int{1, -1, 0}, []int{0, 1, 0}, []float64{0.5, 0.5, 0}},     // scores 1, 1, 0
+		{"dead channel out of it", []int{1, -2, 0}, []int{0, 2, 1}, []float64{0, 0.5, 0.5}}, // 0 - 2 < 0 - 1: channel 0 is certainly below channel 1; scores 2, 2
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			o.Half = tc.half
+			p := make([]float64, 3)
+			o.Probs(tc.r, p)
+			if !slices.Equal(p, tc.want) {
+				t.Errorf("Probs(%v) with offsets %v = %v, want %v", tc.r, tc.half, p, tc.want)
 			}
 		})
 	}

@@ -350,12 +350,13 @@ func fallback(t *tables.Table, cell *tables.Cell, half []int, r []int, p []float
 	for k, ch := range t.Members {
 		r[ch] = cell.Diff[k]
 	}
-	pick := tables.Fallback(cell.Alive, r, half)
+	tied := tables.Fallback(cell.Alive, r, half)
+	w := 1 / float64(tied.Len())
 	for k, ch := range t.Members {
 		r[ch] = tables.Far
 		p[k] = 0
-		if ch == pick {
-			p[k] = 1
+		if tied.Has(ch) {
+			p[k] = w
 		}
 	}
 }

@@ -23,21 +23,46 @@ int pfx_choose(const int32_t readings[PFX_N], uint16_t u);
 
 // cCode is the chooser, after the data.
 const cCode = `
-/* Channel of alive with the highest reading plus its offset (the highest
- * 2*r[i] + half[i]), the lowest index on a tie. */
-static int pfx_fallback(uint32_t alive, const int32_t r[PFX_N])
+/*
+ * Channel of alive with the highest reading plus its offset (the highest
+ * 2*r[i] + half[i]). On a tie of c channels the draw u shares its 65536
+ * values among them in index order: 65536 / c values each, and one more to
+ * each of the first 65536 % c.
+ */
+static int pfx_fallback(uint32_t alive, const int32_t r[PFX_N], uint16_t u)
 {
-    int i, best = -1;
+    int i;
+    uint32_t c = 0, share, rem, cum = 0;
     int64_t top = 0;
 
     for (i = 0; i < PFX_N; i++) {
         int64_t s = 2 * (int64_t)r[i] + (int64_t)pfx_half[i];
-        if (((alive >> i) & 1u) != 0 && (best < 0 || s > top)) {
-            best = i;
+        if (((alive >> i) & 1u) == 0) {
+            continue;
+        }
+        if (c == 0 || s > top) {
             top = s;
+            c = 1;
+        } else if (s == top) {
+            c++;
         }
     }
-    return best;
+    share = 65536u / c;
+    rem = 65536u % c;
+    for (i = 0; i < PFX_N; i++) {
+        if (((alive >> i) & 1u) != 0 &&
+            2 * (int64_t)r[i] + (int64_t)pfx_half[i] == top) {
+            cum += share;
+            if (rem > 0) {
+                cum++;
+                rem--;
+            }
+            if ((uint32_t)u < cum) {
+                return i;
+            }
+        }
+    }
+    return -1; /* unreachable: the shares sum to 65536 > u */
 }
 
 /* Descriptor of the group with channel mask m, or 0 when it has no cells. */
@@ -141,11 +166,11 @@ int pfx_choose(const int32_t readings[PFX_N], uint16_t u)
         }
     }
     if (nalive < 2) {
-        return pfx_fallback(alive, readings);
+        return pfx_fallback(alive, readings, u);
     }
     g = pfx_group_of(group);
     if (g == 0) {
-        return pfx_fallback(alive, readings);
+        return pfx_fallback(alive, readings, u);
     }
     nm = 0;
     for (k = 0; k < PFX_N; k++) {
@@ -155,7 +180,7 @@ int pfx_choose(const int32_t readings[PFX_N], uint16_t u)
     }
     ref = pfx_ref(g, mem, nm, readings);
     if (ref == -1) {
-        return pfx_fallback(alive, readings);
+        return pfx_fallback(alive, readings, u);
     }
     if (ref < -1) {
         return (int)(-2 - ref);

@@ -130,7 +130,7 @@ func NewFixed(o *tables.Optimal) (*Fixed, error) {
 	if o == nil || o.Layout == nil {
 		return nil, fmt.Errorf("cgen: no table")
 	}
-	if _, err := exact.NewTable(o, Bits); err != nil {
+	if _, err := exact.NewTableFixed(o, Bits); err != nil {
 		return nil, fmt.Errorf("cgen: not a %d-bit table: %w", Bits, err)
 	}
 	return &Fixed{Table: o}, nil
@@ -153,7 +153,7 @@ func Numerators(c tables.Cell) []uint32 {
 // channels with 15-point pmfs: the full exact evaluation had not ended
 // after 25 minutes of CPU).
 func (f *Fixed) WorstCase() (exact.Worst, error) {
-	et, err := exact.NewTable(f.Table, Bits)
+	et, err := exact.NewTableFixed(f.Table, Bits)
 	if err != nil {
 		return exact.Worst{}, fmt.Errorf("cgen: %w", err)
 	}
@@ -169,10 +169,12 @@ func (f *Fixed) WorstCase() (exact.Worst, error) {
 // fixed-point rule picks for readings r (in steps, one per channel) and the
 // uniform random number u, as the generated C function does. The top group
 // and its alive channels decide as in tables.Optimal; a forced choice or a
-// missing cell picks tables.Fallback with the table's offsets; otherwise member i of the cell is
+// missing cell picks from the channels of tables.Fallback with the table's
+// offsets, and a cell from its members; in both, channel or member i is
 // picked for the smallest i with u < cum[i], cum[i] the sum of the
-// numerators of members 0..i, so member i is picked for exactly q_i of the
-// 65536 values of u. It returns -1 when len(r) is not the number of
+// numerators over One of channels or members 0..i (for a missing cell,
+// those of exact.ShareNums), so that it is picked for exactly its
+// numerator's number of the 65536 values of u. It returns -1 when len(r) is not the number of
 // channels.
 func (f *Fixed) Choose(r []int32, u uint16) int {
 	l := f.Table.Layout
@@ -185,7 +187,15 @@ func (f *Fixed) Choose(r []int32, u uint16) int {
 	}
 	_, alive, t, c := f.Table.Locate(ri)
 	if t == nil || c < 0 {
-		return tables.Fallback(alive, ri, f.Table.Half)
+		q := make([]uint64, len(r))
+		exact.ShareNums(tables.Fallback(alive, ri, f.Table.Half), One, q)
+		var cum uint64
+		for i, x := range q {
+			cum += x
+			if uint64(u) < cum {
+				return i
+			}
+		}
 	}
 	var cum uint32
 	for i, q := range Numerators(t.Cells[c]) {

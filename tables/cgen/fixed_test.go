@@ -196,3 +196,38 @@ func TestFixedRegret(t *testing.T) {
 		})
 	}
 }
+
+// TestChooseTieCounts: readings without a cell that tie among c channels
+// share the 65536 values of u by exact.ShareNums: 65536/c each, the
+// remainder one more each to the lowest-numbered (by hand: 65536 = 3 *
+// 21845 + 1 = 2 * 32768).
+func TestChooseTieCounts(t *testing.T) {
+	sol := solve(t, "three")
+	f, err := NewFixed(tables.NewOptimal(sol.Layout))
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, tc := range []struct {
+		name string
+		r    []int32
+		want []uint32
+	}{
+		{"three tied", []int32{0, 0, 0}, []uint32{21846, 21845, 21845}},
+		{"two tied", []int32{0, 1, 1}, []uint32{0, 32768, 32768}},
+		{"no tie", []int32{2, 1, 0}, []uint32{65536, 0, 0}},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			count := make([]uint32, 3)
+			for u := 0; u < One; u++ {
+				ch := f.Choose(tc.r, uint16(u))
+				if ch < 0 || ch >= 3 {
+					t.Fatalf("Choose(%v, %d) = %d", tc.r, u, ch)
+				}
+				count[ch]++
+			}
+			if !slices.Equal(count, tc.want) {
+				t.Errorf("Choose(%v, u) over every u picks %v times, want %v", tc.r, count, tc.want)
+			}
+		})
+	}
+}

@@ -79,15 +79,39 @@ func (s shareRule) Nums(r []int, q []uint64) {
 	}
 }
 
-// Table is a table rule whose probabilities are exact fractions q/Den
-// with integer q: the probabilities of O, read as multiples of 1/Den.
+// Table is a table rule whose probabilities are exact fractions q/Denom
+// with integer q: the probabilities of O, read as multiples of 1/Denom.
+// Readings without a cell share a tie of tables.Fallback equally, as O
+// does: Den is Denom times lcm(1..n), n the number of channels, so that
+// every share is an integer (see NewTableFixed for the exception).
 type Table struct {
 	O     *tables.Optimal
 	Denom uint64
+	// mult is Den / Denom: lcm(1..n), or 1 for a fixed-point table.
+	mult uint64
 	// near reports that every float probability of O is within 1e-15 of
-	// its numerator over Denom, so that O itself can stand for the table
+	// its numerator over Den, so that O itself can stand for the table
 	// in float evaluations.
 	near bool
+}
+
+// ShareNums sets the numerators q, over den, of a tie among the channels
+// of tied: den/c each, c the number of channels tied, and one more to
+// each of the den mod c lowest-numbered of them; zero to every other
+// channel. When c divides den the shares are equal.
+func ShareNums(tied tables.Set, den uint64, q []uint64) {
+	c := uint64(tied.Len())
+	share, rem := den/c, den%c
+	for i := range q {
+		q[i] = 0
+		if tied.Has(i) {
+			q[i] = share
+			if rem > 0 {
+				q[i]++
+				rem--
+			}
+		}
+	}
 }
 
 // NewTable checks that every probability of o is a non-negative multiple of
@@ -96,7 +120,19 @@ func NewTable(o *tables.Optimal, bits uint) (*Table, error) {
 	if bits > 52 {
 		return nil, fmt.Errorf("exact: %d bits of probability is too many (at most 52)", bits)
 	}
-	return newTable(o, uint64(1)<<bits, true)
+	return newTable(o, uint64(1)<<bits, true, false)
+}
+
+// NewTableFixed is NewTable for the rule of a fixed-point chooser, which
+// draws one number of the given bits for every choice (see package cgen): a
+// tie at readings without a cell shares the 2^bits values of the draw by
+// ShareNums, equally only when the number of channels tied divides 2^bits.
+// Den is then 2^bits.
+func NewTableFixed(o *tables.Optimal, bits uint) (*Table, error) {
+	if bits > 52 {
+		return nil, fmt.Errorf("exact: %d bits of probability is too many (at most 52)", bits)
+	}
+	return newTable(o, uint64(1)<<bits, true, true)
 }
 
 // NewTableDen reads the probabilities of o as fractions q/den, q the
@@ -109,11 +145,20 @@ func NewTableDen(o *tables.Optimal, den uint64) (*Table, error) {
 	if den == 0 || den > 1<<52 {
 		return nil, fmt.Errorf("exact: denominator %d out of range [1, 2^52]", den)
 	}
-	return newTable(o, den, false)
+	return newTable(o, den, false, false)
 }
 
-func newTable(o *tables.Optimal, den uint64, strict bool) (*Table, error) {
-	t := &Table{O: o, Denom: den, near: true}
+func newTable(o *tables.Optimal, den uint64, strict, fixed bool) (*Table, error) {
+	t := &Table{O: o, Denom: den, mult: 1, near: true}
+	if l := lcm1n(o.Layout.N()); !fixed {
+		if den > math.MaxUint64/l {
+			return nil, fmt.Errorf("exact: denominator %d times lcm(1..%d) = %d, for shared ties, overflows 64 bits", den, o.Layout.N(), l)
+		}
+		t.mult = l
+	} else if den%l != 0 {
+		// O shares ties equally; the fixed-point rule does not.
+		t.near = false
+	}
 	for _, tab := range o.Tables {
 		for _, c := range tab.Cells {
 			var s uint64
@@ -153,20 +198,21 @@ func (t *Table) numerator(p float64, strict bool) (uint64, bool) {
 }
 
 // Den implements Rule.
-func (t *Table) Den() uint64 { return t.Denom }
+func (t *Table) Den() uint64 { return t.Denom * t.mult }
 
 // Nums implements Rule.
 func (t *Table) Nums(r []int, q []uint64) {
+	_, alive, tab, c := t.O.Locate(r)
+	if tab == nil || c < 0 {
+		ShareNums(tables.Fallback(alive, r, t.O.Half), t.Den(), q)
+		return
+	}
 	for i := range q {
 		q[i] = 0
 	}
-	_, alive, tab, c := t.O.Locate(r)
-	if tab == nil || c < 0 {
-		q[tables.Fallback(alive, r, t.O.Half)] = t.Denom
-		return
-	}
 	for i, ch := range tab.Members {
-		q[ch], _ = t.numerator(tab.Cells[c].P[i], false)
+		x, _ := t.numerator(tab.Cells[c].P[i], false)
+		q[ch] = x * t.mult
 	}
 }
 

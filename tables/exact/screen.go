@@ -36,7 +36,7 @@ func (t *Table) Float() tables.Rule {
 	if t.near {
 		return t.O
 	}
-	return floatRule{t, float64(t.Denom)}
+	return floatRule{t, float64(t.Den())}
 }
 
 func (f floatRule) Probs(r []int, p []float64) {

@@ -44,8 +44,8 @@ import (
 // half, each in channel order. Readings not covered by a cell pick, among
 // the channels of the top group not certainly below another, the highest
 // reading plus its offset (the highest 2*r_i/step + half_i; the highest
-// reading without offsets), the lowest-numbered on a tie
-// (tables.Fallback); with one such channel the choice is forced.
+// reading without offsets), sharing a tie equally among the channels
+// tied (tables.Fallback); with one such channel the choice is forced.
 func CSV(w io.Writer, sol *result.Solution) error {
 	if err := check(sol); err != nil {
 		return err

@@ -14,8 +14,10 @@ import (
 )
 
 // CellsFormat is the value of the format field of the JSON that JSON
-// writes and ReadJSON reads.
-const CellsFormat = "pickwise-cells/1"
+// writes and ReadJSON reads. Version 2: readings without a cell share a
+// tie equally (tables.Fallback), where version 1 gave it to the
+// lowest-numbered channel.
+const CellsFormat = "pickwise-cells/2"
 
 // cellsFile is the JSON document of JSON and ReadJSON.
 type cellsFile struct {
@@ -41,7 +43,7 @@ type jsonCell struct {
 // tables.Subsets, cells in the order their table holds them, so ReadJSON
 // rebuilds the very same tables. The fields are:
 //
-//	format      "pickwise-cells/1"
+//	format      "pickwise-cells/2"
 //	channels    the names of all channels of the model, in channel order
 //	step        the step as the exact decimal of the model's step
 //	unit        the reading unit (may be empty)
@@ -63,8 +65,8 @@ type jsonCell struct {
 // Readings not covered by a cell pick, among the channels of the top group
 // not certainly below another, the highest reading plus its offset (the
 // highest 2*r_i/step + missing_cell_half_steps[i]; the highest reading
-// without offsets), the lowest-numbered on a tie (tables.Fallback); with
-// one such channel the choice is forced.
+// without offsets), sharing a tie equally among the channels tied
+// (tables.Fallback); with one such channel the choice is forced.
 func JSON(w io.Writer, sol *result.Solution) error {
 	if err := check(sol); err != nil {
 		return err

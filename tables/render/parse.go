@@ -103,7 +103,7 @@ func (b *builder) add(c cellText) error {
 	}
 	alive := b.l.Alive(set, r)
 	if alive.Len() < 2 {
-		return fmt.Errorf("group %s cell %v: a cell where only channel %q is not certainly below another is forced, not a table cell", g, diff, b.names[tables.Fallback(alive, r, nil)])
+		return fmt.Errorf("group %s cell %v: a cell where only channel %q is not certainly below another is forced, not a table cell", g, diff, b.names[alive.Members()[0]])
 	}
 	var sum float64
 	for k, ch := range mem {

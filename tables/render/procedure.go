@@ -247,15 +247,15 @@ func (p *procedure) diffName(t *tables.Table, k int) string {
 
 // decide returns what the printed rule does at readings r, seen from
 // group t: whether r makes t's channels the top group, and either the
-// numerators of the table cell (over Den, per member of t) or the channel
-// it is forced to pick.
-func (p *procedure) decide(t *tables.Table, r []int) (inGroup bool, q []int, forced int) {
+// numerators of the table cell (over Den, per member of t) or the channels
+// it is forced to pick from (see forcedName; none for a cell).
+func (p *procedure) decide(t *tables.Table, r []int) (inGroup bool, q []int, forced tables.Set) {
 	g, alive, tt, c := p.pr.Tables.Locate(r)
 	if g != t.Group {
 		return false, nil, tables.Fallback(alive, r, p.pr.Tables.Half)
 	}
 	if tt != nil && c >= 0 {
-		return true, nums(tt.Cells[c].P), -1
+		return true, nums(tt.Cells[c].P), 0
 	}
 	return true, nil, tables.Fallback(alive, r, p.pr.Tables.Half)
 }
@@ -318,7 +318,7 @@ func (p *procedure) pairs(t *tables.Table) section {
 	type pick struct {
 		cell   bool
 		q      []int
-		forced int
+		forced tables.Set
 	}
 	// Beyond ±(T+1) the top group is a single channel: the choice there is
 	// the one at the ends of this range.
@@ -352,7 +352,7 @@ func (p *procedure) pairs(t *tables.Table) section {
 		switch {
 		case !pk.cell:
 			e.Class = "out"
-			e.Text = "(choose " + p.lab[pk.forced] + ")"
+			e.Text = "(choose " + p.forcedName(pk.forced) + ")"
 		case pk.q[1] == Den:
 			e.Text = "choose " + b
 		case pk.q[0] == Den:
@@ -364,16 +364,26 @@ func (p *procedure) pairs(t *tables.Table) section {
 		s.Table.Rows = append(s.Table.Rows, gridRow{Heads: []string{p.u.of(lo + i)}, Entries: []entry{e}})
 	}
 	s.Notes = []string{
-		fmt.Sprintf("%s ≤ %s%s: choose %s.", dn, p.u.of(lo+first-1), p.u.suffix(), p.lab[picks[0].forced]),
-		fmt.Sprintf("%s ≥ %s%s: choose %s.", dn, p.u.of(lo+last+1), p.u.suffix(), p.lab[picks[len(picks)-1].forced]),
+		fmt.Sprintf("%s ≤ %s%s: choose %s.", dn, p.u.of(lo+first-1), p.u.suffix(), p.forcedName(picks[0].forced)),
+		fmt.Sprintf("%s ≥ %s%s: choose %s.", dn, p.u.of(lo+last+1), p.u.suffix(), p.forcedName(picks[len(picks)-1].forced)),
 	}
 	for i := first; i <= last; i++ {
 		if !picks[i].cell {
-			s.Notes = append(s.Notes, "An entry in parentheses has no table cell: the choice there is forced.")
+			s.Notes = append(s.Notes, "An entry in parentheses has no table cell: the choice there is forced (\"A or B\": one of the two, with equal chances).")
 			break
 		}
 	}
 	return s
+}
+
+// forcedName names the channels of a choice without a table cell: one
+// label, or on a tie "A or B" (equal chances; see tables.Fallback).
+func (p *procedure) forcedName(s tables.Set) string {
+	var names []string
+	for _, ch := range s.Members() {
+		names = append(names, p.lab[ch])
+	}
+	return strings.Join(names, " or ")
 }
 
 // outside is the note for readings of a group without an entry.
@@ -386,7 +396,7 @@ func (p *procedure) outside(t *tables.Table, where string) string {
 		}
 		how = "the one with the highest reading plus its offset (" + strings.Join(parts, ", ") + ")"
 	}
-	return fmt.Sprintf("Readings that make %s the group but have no entry %s: choose, among the channels not certainly below another, %s (the first in channel order on a tie).",
+	return fmt.Sprintf("Readings that make %s the group but have no entry %s: choose, among the channels not certainly below another, %s (on a tie, one of the tied channels, with equal chances).",
 		strings.TrimPrefix(p.groupTitle(t), "Group "), where, how)
 }
 
@@ -408,7 +418,7 @@ func (p *procedure) grid(t *tables.Table) section {
 	s.Intro = []string{
 		axes + ".",
 		"A label alone is the channel to choose. \"A 1–40, B 41–100\" means: draw a number from 1 to 100 and choose A on 1 to 40, B on 41 to 100. " +
-			"(X): no table cell; X is forced. –: these readings do not make this group (step 2).",
+			"(X): no table cell; X is forced. (X or Y): no table cell; choose X or Y, with equal chances. –: these readings do not make this group (step 2).",
 	}
 	s.Table.Class = "grid"
 	s.Table.Head = []string{rn + " ↓  " + cn + " →"}
@@ -425,7 +435,7 @@ func (p *procedure) grid(t *tables.Table) section {
 			case q != nil:
 				row.Entries = append(row.Entries, entry{Text: p.short(t, q), Class: "cell"})
 			default:
-				row.Entries = append(row.Entries, entry{Text: "(" + p.lab[f] + ")", Class: "out"})
+				row.Entries = append(row.Entries, entry{Text: "(" + p.forcedName(f) + ")", Class: "out"})
 			}
 		}
 		s.Table.Rows = append(s.Table.Rows, row)

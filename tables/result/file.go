@@ -16,8 +16,11 @@ import (
 )
 
 // Format is the value of the format field of the result files this version
-// writes and reads.
-const Format = "pickwise-result/1"
+// writes and reads. Version 2: readings without a table cell share a tie of
+// the offset rule equally (tables.Fallback); version 1 gave it to the
+// lowest-numbered channel, so its certificates do not hold for version 2's
+// reading of the same tables.
+const Format = "pickwise-result/2"
 
 // File is the JSON result file. Exact numbers are fractions written as
 // strings ("3/8"); regrets are in reading units (steps times the step,

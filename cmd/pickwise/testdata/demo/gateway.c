@@ -7,8 +7,8 @@
  * 11356 bytes of constant data.
  *
  * A cell reference is -1 for no cell (pick the alive channel with the
- * highest reading plus its offset in gateway_half, the lowest index on a
- * tie), -2 - c for a cell that picks channel c with certainty, or the
+ * highest reading plus its offset in gateway_half, a tie shared by the
+ * draw), -2 - c for a cell that picks channel c with certainty, or the
  * offset of the cell's row in gateway_cum.
  * The key of a cell is its reading differences d_k = r_k - r_first (k the
  * member positions 1 .. m-1), less dmin[k], as mixed-radix digits with
@@ -302,21 +302,46 @@ static const struct gateway_group gateway_groups[GATEWAY_NGROUPS] = {
     {0x7u, 0, 35, 2750, {0, -26, -27}, {1, 50, 55}}
 };
 
-/* Channel of alive with the highest reading plus its offset (the highest
- * 2*r[i] + half[i]), the lowest index on a tie. */
-static int gateway_fallback(uint32_t alive, const int32_t r[GATEWAY_N])
+/*
+ * Channel of alive with the highest reading plus its offset (the highest
+ * 2*r[i] + half[i]). On a tie of c channels the draw u shares its 65536
+ * values among them in index order: 65536 / c values each, and one more to
+ * each of the first 65536 % c.
+ */
+static int gateway_fallback(uint32_t alive, const int32_t r[GATEWAY_N], uint16_t u)
 {
-    int i, best = -1;
+    int i;
+    uint32_t c = 0, share, rem, cum = 0;
     int64_t top = 0;
 
     for (i = 0; i < GATEWAY_N; i++) {
         int64_t s = 2 * (int64_t)r[i] + (int64_t)gateway_half[i];
-        if (((alive >> i) & 1u) != 0 && (best < 0 || s > top)) {
-            best = i;
+        if (((alive >> i) & 1u) == 0) {
+            continue;
+        }
+        if (c == 0 || s > top) {
             top = s;
+            c = 1;
+        } else if (s == top) {
+            c++;
         }
     }
-    return best;
+    share = 65536u / c;
+    rem = 65536u % c;
+    for (i = 0; i < GATEWAY_N; i++) {
+        if (((alive >> i) & 1u) != 0 &&
+            2 * (int64_t)r[i] + (int64_t)gateway_half[i] == top) {
+            cum += share;
+            if (rem > 0) {
+                cum++;
+                rem--;
+            }
+            if ((uint32_t)u < cum) {
+                return i;
+            }
+        }
+    }
+    return -1; /* unreachable: the shares sum to 65536 > u */
 }
 
 /* Descriptor of the group with channel mask m, or 0 when it has no cells. */
@@ -420,11 +445,11 @@ int gateway_choose(const int32_t readings[GATEWAY_N], uint16_t u)
         }
     }
     if (nalive < 2) {
-        return gateway_fallback(alive, readings);
+        return gateway_fallback(alive, readings, u);
     }
     g = gateway_group_of(group);
     if (g == 0) {
-        return gateway_fallback(alive, readings);
+        return gateway_fallback(alive, readings, u);
     }
     nm = 0;
     for (k = 0; k < GATEWAY_N; k++) {
@@ -434,7 +459,7 @@ int gateway_choose(const int32_t readings[GATEWAY_N], uint16_t u)
     }
     ref = gateway_ref(g, mem, nm, readings);
     if (ref == -1) {
-        return gateway_fallback(alive, readings);
+        return gateway_fallback(alive, readings, u);
     }
     if (ref < -1) {
         return (int)(-2 - ref);
