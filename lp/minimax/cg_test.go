@@ -290,8 +290,9 @@ func TestCGNoFalseConvergence(t *testing.T) {
 }
 
 // TestCGShaped: with lp/dw (a minimax.Shaper) the rounds after the first
-// (and the first too when it is split: solved exactly for the bound, then
-// shaped) are shaped until one finds no violated configuration, and the loop
+// are shaped until one finds no violated configuration (and every round
+// when exact rounds are split: solved exactly for the bound, then shaped),
+// and the loop
 // still converges to the optimum of the direct LP solved by CLP: the
 // value of the solution it returns (the certificate's prior) and the best
 // rule's worst case are that optimum.
@@ -299,11 +300,11 @@ func TestCGShaped(t *testing.T) {
 	for _, tc := range []struct {
 		name  string
 		batch int
-		split bool // the first round solved exactly, then shaped
+		split bool // exact rounds solved exactly, then shaped
 	}{
 		{"batch 1", 1, false},
 		{"batch 2", 2, false},
-		{"batch 2, first round split", 2, true},
+		{"batch 2, exact rounds split", 2, true},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			// (On skewedModel the first, exact round is already
@@ -312,11 +313,11 @@ func TestCGShaped(t *testing.T) {
 			direct := solve(t, m, clp.Solver{PrimalTolerance: 1e-9, DualTolerance: 1e-9})
 			l := direct.l
 			var shaped []bool
-			opt := minimax.CGOptions{Batch: tc.batch, Half: l.OffsetHalfSteps(), Radius: -1, SplitFirst: -1, Progress: func(p minimax.Progress) {
+			opt := minimax.CGOptions{Batch: tc.batch, Half: l.OffsetHalfSteps(), Radius: -1, Split: -1, Progress: func(p minimax.Progress) {
 				shaped = append(shaped, p.Shaped)
 			}}
 			if tc.split {
-				opt.SplitFirst = 1
+				opt.Split = 1
 			}
 			newModel := func(p *lp.Problem) (minimax.Incremental, error) { return dw.New(p) }
 			res, err := minimax.SolveCG(context.Background(), l, newModel, opt)
@@ -329,6 +330,9 @@ func TestCGShaped(t *testing.T) {
 			}
 			if shaped[0] != tc.split {
 				t.Errorf("the first round shaped %v, want %v", shaped[0], tc.split)
+			}
+			if tc.split && slices.Contains(shaped, false) {
+				t.Errorf("exact rounds are split, but rounds shaped %v", shaped)
 			}
 			if !res.Converged {
 				t.Fatal("constraint generation did not converge")
