@@ -174,8 +174,8 @@ func (f *Fixed) WorstCase() (exact.Worst, error) {
 // picked for the smallest i with u < cum[i], cum[i] the sum of the
 // numerators over One of channels or members 0..i (for a missing cell,
 // those of exact.ShareNums), so that it is picked for exactly its
-// numerator's number of the 65536 values of u. It returns -1 when len(r) is not the number of
-// channels.
+// numerator's number of the 65536 values of u. It returns -1 when len(r)
+// is not the number of channels.
 func (f *Fixed) Choose(r []int32, u uint16) int {
 	l := f.Table.Layout
 	if len(r) != l.N() {
@@ -196,6 +196,7 @@ func (f *Fixed) Choose(r []int32, u uint16) int {
 				return i
 			}
 		}
+		return -1 // unreachable: the shares sum to One > u
 	}
 	var cum uint32
 	for i, q := range Numerators(t.Cells[c]) {
