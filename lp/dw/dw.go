@@ -841,7 +841,9 @@ func (r *cutRows) AddRow(idx []int, val []float64, lo, up float64) int {
 // RowDual holds minus the best prior found on the linking rows (the duals
 // a simplex code would give there, up to the tolerance) and 0 on the block
 // rows. Objective is the master's optimum: an upper bound on the program's
-// optimum, within the tolerance of it.
+// optimum, within the tolerance of it. When ctx ends the solve, Solve
+// returns the error together with a solution that holds the best prior so
+// far and its lower bound, and no columns (see interrupted).
 func (m *Model) Solve(ctx context.Context) (*lp.Solution, error) {
 	if err := m.check(); err != nil {
 		return nil, err
@@ -922,10 +924,13 @@ func (m *Model) Solve(ctx context.Context) (*lp.Solution, error) {
 	idle, last := 0, math.NaN()
 	for it := 0; ; it++ {
 		if err := ctx.Err(); err != nil {
-			return nil, fmt.Errorf("dw: %w", err)
+			return m.interrupted(fmt.Errorf("dw: %w", err))
 		}
 		sol, err := m.master.Solve(ctx)
 		if err != nil {
+			if ctx.Err() != nil {
+				return m.interrupted(fmt.Errorf("dw: master (%d cuts): %w", len(m.cuts), err))
+			}
 			return nil, fmt.Errorf("dw: master (%d cuts): %w", len(m.cuts), err)
 		}
 		m.iters += sol.Iterations
@@ -939,6 +944,9 @@ func (m *Model) Solve(ctx context.Context) (*lp.Solution, error) {
 		// The dual simplex from the basis reached gets through.
 		for try := 0; try < 3 && m.bestLB-sigma > 1e-9*math.Max(1, math.Abs(sigma)); try++ {
 			if sol, err = m.master.Solve(ctx); err != nil {
+				if ctx.Err() != nil {
+					return m.interrupted(fmt.Errorf("dw: master (%d cuts): %w", len(m.cuts), err))
+				}
 				return nil, fmt.Errorf("dw: master (%d cuts): %w", len(m.cuts), err)
 			}
 			m.iters += sol.Iterations
@@ -1076,11 +1084,28 @@ func (m *Model) Solve(ctx context.Context) (*lp.Solution, error) {
 		x[0] -= c * x[j]
 	}
 	m.prune(dual, 16*m.nparts)
+	return &lp.Solution{Objective: sigma, X: x, RowDual: m.centerDual(), Iterations: m.iters}, nil
+}
+
+// centerDual returns the row duals of the prior of the best lower bound:
+// minus its weight on each linking row, zero on the block rows.
+func (m *Model) centerDual() []float64 {
 	out := make([]float64, m.nrows)
 	for v, row := range m.lrow {
-		out[row] = -m.center[v]
+		if v < len(m.center) {
+			out[row] = -m.center[v]
+		}
 	}
-	return &lp.Solution{Objective: sigma, X: x, RowDual: out, Iterations: m.iters}, nil
+	return out
+}
+
+// interrupted is what a solve that its context ended returns: err, with a
+// solution that holds the prior of the best lower bound so far (RowDual,
+// as Solve's) and that bound (Objective; -Inf before any pricing), and no
+// columns (X nil). A caller stopped by a time limit can still certify the
+// bound that the prior gives.
+func (m *Model) interrupted(err error) (*lp.Solution, error) {
+	return &lp.Solution{Objective: m.bestLB, RowDual: m.centerDual(), Iterations: m.iters}, err
 }
 
 // prune drops the cuts the master's last solution does not use, except

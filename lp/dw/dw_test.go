@@ -2,6 +2,7 @@ package dw_test
 
 import (
 	"context"
+	"errors"
 	"fmt"
 	"math"
 	"math/rand/v2"
@@ -602,5 +603,58 @@ func TestCosts(t *testing.T) {
 		if err := m.SetCosts(c); err == nil {
 			t.Errorf("SetCosts(%v): no error", c)
 		}
+	}
+}
+
+// TestInterrupted: a solve that its context ends returns the error with
+// the best prior so far: after a complete solve and new linking rows, a
+// solve under a cancelled context returns that solve's prior on the old
+// rows, zero on the new ones, and its lower bound, with no columns.
+func TestInterrupted(t *testing.T) {
+	rng := rand.New(rand.NewPCG(5, 8))
+	const nb, nl = 12, 10
+	p := randomProgram(rng, nb, nl, func(int) int { return nb })
+	m, err := dw.New(p.problem(0, p.ncols, p.rows[:nl/2], seq(nb)))
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer m.Close()
+	first, err := m.Solve(context.Background())
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := m.AddRows(p.problem(0, p.ncols, p.rows[nl/2:], nil)); err != nil {
+		t.Fatal(err)
+	}
+	ctx, cancel := context.WithCancel(context.Background())
+	cancel()
+	sol, err := m.Solve(ctx)
+	if !errors.Is(err, context.Canceled) {
+		t.Fatalf("error %v, want context.Canceled", err)
+	}
+	if sol == nil || sol.X != nil {
+		t.Fatalf("solution %+v, want a prior and no columns", sol)
+	}
+	// Rows: the first nl/2 linking rows, the nb block rows, then the new
+	// linking rows.
+	if len(sol.RowDual) != nl+nb {
+		t.Fatalf("%d row duals, want %d", len(sol.RowDual), nl+nb)
+	}
+	var mass float64
+	for r, d := range sol.RowDual {
+		want := 0.0
+		if r < nl/2 {
+			want = first.RowDual[r]
+		}
+		if d != want {
+			t.Errorf("row %d: dual %g, want %g", r, d, want)
+		}
+		mass -= d
+	}
+	if math.Abs(mass-1) > 1e-9 {
+		t.Errorf("the prior's mass is %g, want 1", mass)
+	}
+	if math.Abs(sol.Objective-first.Objective) > 1e-9*math.Max(1, math.Abs(first.Objective)) {
+		t.Errorf("lower bound %.12g, want about the first solve's optimum %.12g", sol.Objective, first.Objective)
 	}
 }

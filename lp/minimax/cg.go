@@ -115,7 +115,10 @@ type CGResult struct {
 	F *Formulation
 	// Solution is the LP solution of the round, exact or shaped (see
 	// Shaper), whose prior has the highest Bayes risk
-	// (Formulation.PriorValue): its duals give the best prior found.
+	// (Formulation.PriorValue): its duals give the best prior found. It
+	// can be what a solve cut short by the deadline returned with its
+	// error (see lp/dw's Model.Solve): then X is nil and Objective is that
+	// Bayes risk.
 	Solution *lp.Solution
 	// WorstCase is the fast evaluator's worst case of the rule in F's
 	// tables, in steps.
@@ -614,6 +617,20 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 			res.Solution, lb = sol, pv
 		}
 	}
+	// partial takes the lower bound of the prior that an interrupted
+	// solve returns with its error (lp/dw does: the best prior so far),
+	// as the certificate's when it is the highest; the solution's
+	// Objective becomes that bound. A time limit during a round's solve
+	// then keeps the bound the solve had reached.
+	partial := func(sol *lp.Solution) {
+		if sol == nil || sol.RowDual == nil || res.Solution == nil {
+			return
+		}
+		if pv := f.PriorValue(f.Prior(sol.RowDual)); pv > lb {
+			sol.Objective = pv
+			res.Solution, lb = sol, pv
+		}
+	}
 	split := opt.Split
 	if split == 0 {
 		split = splitConfigs
@@ -631,6 +648,7 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 			}
 			sol, err := solveBy(ctx, model, opt.Deadline)
 			if err != nil {
+				partial(sol)
 				return failed(round, err)
 			}
 			bound(sol, true)
@@ -641,6 +659,7 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 		}
 		sol, err := solveBy(ctx, model, opt.Deadline)
 		if err != nil {
+			partial(sol)
 			return failed(round, err)
 		}
 		f.Apply(sol.X)

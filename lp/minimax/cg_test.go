@@ -18,11 +18,13 @@ import (
 )
 
 // stopAt is a CLP model whose solve number stop fails as a solve cut
-// short by a deadline would.
+// short by a deadline would; with partial, it fails as lp/dw's does, with
+// the prior of that solve (here the complete solve's) and no columns.
 type stopAt struct {
-	m      *clp.Model
-	solves int
-	stop   int
+	m       *clp.Model
+	solves  int
+	stop    int
+	partial bool
 }
 
 func (s *stopAt) AddColumns(lo, up, obj []float64) error { return s.m.AddColumns(lo, up, obj) }
@@ -33,7 +35,15 @@ func (s *stopAt) Close() { s.m.Close() }
 func (s *stopAt) Solve(ctx context.Context) (*lp.Solution, error) {
 	s.solves++
 	if s.solves == s.stop {
-		return nil, fmt.Errorf("clp: solve interrupted: %w", context.DeadlineExceeded)
+		err := fmt.Errorf("clp: solve interrupted: %w", context.DeadlineExceeded)
+		if !s.partial {
+			return nil, err
+		}
+		sol, serr := s.m.Solve(ctx)
+		if serr != nil {
+			return nil, serr
+		}
+		return &lp.Solution{Objective: sol.Objective, RowDual: sol.RowDual}, err
 	}
 	return s.m.Solve(ctx)
 }
@@ -42,7 +52,8 @@ func (s *stopAt) Solve(ctx context.Context) (*lp.Solution, error) {
 // generation returns, unconverged, its best rule (no worse than any
 // completed round's), and that rule is the one whose worst case it
 // reports (cells that later rounds added pick as missing cells do); when
-// it interrupts the first solve, there is no rule and the error says so.
+// it interrupts the first solve, there is no rule and the error says so;
+// when the interrupted solve returns a prior, its bound is kept.
 func TestCGDeadline(t *testing.T) {
 	m := model(t, 1, []float64{-2, 0.1, 0.3, 0.2, 0.4}, []float64{0, 0.6, 0.25, 0.15}, []float64{-1, 0.5, 0.1, 0.4})
 	l, err := tables.NewLayout(m)
@@ -82,6 +93,34 @@ func TestCGDeadline(t *testing.T) {
 	}
 	if _, err := minimax.SolveCG(context.Background(), l, newStopAt(1), far); err == nil {
 		t.Error("a deadline during the first solve gave no error")
+	}
+
+	// A solve cut short that returns its prior: the prior's bound, the
+	// second solve's, is kept when it beats the completed round's.
+	one, err := minimax.SolveCG(context.Background(), l, newStopAt(2), far)
+	if err != nil {
+		t.Fatal(err)
+	}
+	newPartial := func(p *lp.Problem) (minimax.Incremental, error) {
+		in, err := newStopAt(2)(p)
+		if err != nil {
+			return nil, err
+		}
+		in.(*stopAt).partial = true
+		return in, nil
+	}
+	kept, err := minimax.SolveCG(context.Background(), l, newPartial, far)
+	if err != nil {
+		t.Fatal(err)
+	}
+	boundOf := func(r *minimax.CGResult) float64 { return r.F.PriorValue(r.F.Prior(r.Solution.RowDual)) }
+	plain, cut := boundOf(one), boundOf(kept)
+	if kept.Solution.X != nil || kept.Solution.Objective != cut || !(cut > plain) || cut > full.WorstCase*(1+1e-9) {
+		t.Errorf("with the cut-short solve's prior: solution with columns %v, objective %.15g, bound %.15g; without it %.15g; optimum %.15g",
+			kept.Solution.X != nil, kept.Solution.Objective, cut, plain, full.WorstCase)
+	}
+	if kept.WorstCase != one.WorstCase {
+		t.Errorf("the prior changed the rule: worst case %.15g, without it %.15g", kept.WorstCase, one.WorstCase)
 	}
 }
 
