@@ -658,3 +658,45 @@ func TestInterrupted(t *testing.T) {
 		t.Errorf("lower bound %.12g, want about the first solve's optimum %.12g", sol.Objective, first.Objective)
 	}
 }
+
+// TestPlainBoundKept: a solve without costs after a solve with costs
+// starts from the prior of the last solve without costs: interrupted at
+// once, it returns that solve's bound (the optimum, within the tolerance),
+// not the bound of the prior of the solve with costs, which is lower.
+func TestPlainBoundKept(t *testing.T) {
+	rng := rand.New(rand.NewPCG(21, 4))
+	const nb, nl = 12, 10
+	p := randomProgram(rng, nb, nl, func(int) int { return nb })
+	m, err := dw.New(p.problem(0, p.ncols, p.rows, seq(nb)))
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer m.Close()
+	plain, err := m.Solve(context.Background())
+	if err != nil {
+		t.Fatal(err)
+	}
+	c := make([]float64, p.ncols)
+	for j := 1; j < p.ncols; j++ {
+		c[j] = rng.Float64()
+	}
+	if err := m.SetCosts(c); err != nil {
+		t.Fatal(err)
+	}
+	costly, err := m.Solve(context.Background())
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := m.SetCosts(nil); err != nil {
+		t.Fatal(err)
+	}
+	ctx, cancel := context.WithCancel(context.Background())
+	cancel()
+	sol, err := m.Solve(ctx)
+	if !errors.Is(err, context.Canceled) || sol == nil {
+		t.Fatalf("solution %v, error %v; want a prior and context.Canceled", sol, err)
+	}
+	if math.Abs(sol.Objective-plain.Objective) > 1e-9*math.Max(1, math.Abs(plain.Objective)) {
+		t.Errorf("bound %.12g, want the solve without costs' %.12g (the solve with costs ended at %.12g)", sol.Objective, plain.Objective, costly.Objective)
+	}
+}
