@@ -142,12 +142,6 @@ type Model struct {
 
 	costs    []float64 // per column, as far as set (see SetCosts)
 	newCosts bool      // costs changed since the last solve
-
-	// plainCenter is the prior of the best lower bound of the last solve
-	// without costs (nil before one): a solve without costs after solves
-	// with costs starts from it when it gives a better bound than the
-	// last prior (see Solve).
-	plainCenter []float64
 }
 
 // A solve whose master has not moved for stallRounds solves in a row ends
@@ -914,22 +908,6 @@ func (m *Model) Solve(ctx context.Context) (*lp.Solution, error) {
 			pt, lb := m.price(m.center)
 			m.bestLB = lb
 			m.cuts = append(m.cuts, m.newCuts(pt, false)...)
-			if len(m.costs) == 0 && m.plainCenter != nil {
-				// Back to no costs: the last such solve's prior
-				// still gives its bound (it puts no weight on the
-				// linking rows added since, and the rows it weighs
-				// do not reach the blocks added since). Constraint
-				// generation on five channels: an exact solve after
-				// shaped ones started from 0.63553 instead of the
-				// shaped prior's bound.
-				c := append(slices.Clone(m.plainCenter), make([]float64, k-len(m.plainCenter))...)
-				pt, lb := m.price(c)
-				m.cuts = append(m.cuts, m.newCuts(pt, false)...)
-				if lb > m.bestLB {
-					m.bestLB = lb
-					copy(m.center, c)
-				}
-			}
 		}
 		m.newCosts = false
 		m.baseBlocks = len(m.brow)
@@ -1106,15 +1084,7 @@ func (m *Model) Solve(ctx context.Context) (*lp.Solution, error) {
 		x[0] -= c * x[j]
 	}
 	m.prune(dual, 16*m.nparts)
-	m.keepPlain()
 	return &lp.Solution{Objective: sigma, X: x, RowDual: m.centerDual(), Iterations: m.iters}, nil
-}
-
-// keepPlain records the best prior of a solve without costs.
-func (m *Model) keepPlain() {
-	if len(m.costs) == 0 && !math.IsInf(m.bestLB, -1) {
-		m.plainCenter = append(m.plainCenter[:0], m.center...)
-	}
 }
 
 // centerDual returns the row duals of the prior of the best lower bound:
@@ -1135,7 +1105,6 @@ func (m *Model) centerDual() []float64 {
 // columns (X nil). A caller stopped by a time limit can still certify the
 // bound that the prior gives.
 func (m *Model) interrupted(err error) (*lp.Solution, error) {
-	m.keepPlain()
 	return &lp.Solution{Objective: m.bestLB, RowDual: m.centerDual(), Iterations: m.iters}, err
 }
 
