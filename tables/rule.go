@@ -30,25 +30,18 @@ type Offset struct {
 func (o Offset) Probs(r []int, p []float64) { argmaxShare(r, o.Half, p) }
 
 // argmaxShare sets p to the uniform distribution over the channels with the
-// highest 2*r_i + half_i (half may be nil).
+// highest 2*r_i + half_i (half may be nil): Fallback over every channel.
 func argmaxShare(r []int, half []int, p []float64) {
-	best, count := 0, 0
-	for i, x := range r {
-		s := OffsetScore(x, half, i)
-		switch {
-		case count == 0 || s > best:
-			best, count = s, 1
-		case s == best:
-			count++
-		}
-	}
-	w := 1 / float64(count)
-	for i, x := range r {
-		s := OffsetScore(x, half, i)
-		if s == best {
+	share(Fallback(1<<uint(len(r))-1, r, half), p)
+}
+
+// share sets p to the uniform distribution over the channels of tied.
+func share(tied Set, p []float64) {
+	w := 1 / float64(tied.Len())
+	for i := range p {
+		p[i] = 0
+		if tied.Has(i) {
 			p[i] = w
-		} else {
-			p[i] = 0
 		}
 	}
 }
@@ -279,19 +272,13 @@ func (o *Optimal) Locate(r []int) (g, alive Set, t *Table, cell int) {
 
 // Probs implements Rule.
 func (o *Optimal) Probs(r []int, p []float64) {
-	for i := range p {
-		p[i] = 0
-	}
 	_, alive, t, c := o.Locate(r)
 	if t == nil || c < 0 {
-		tied := Fallback(alive, r, o.Half)
-		w := 1 / float64(tied.Len())
-		for i := range p {
-			if tied.Has(i) {
-				p[i] = w
-			}
-		}
+		share(Fallback(alive, r, o.Half), p)
 		return
+	}
+	for i := range p {
+		p[i] = 0
 	}
 	for i, ch := range t.Members {
 		p[ch] = t.Cells[c].P[i]

@@ -59,24 +59,7 @@ func Offset(half []int) Rule { return shareRule{half: half, den: lcm1n(len(half)
 func (s shareRule) Den() uint64 { return s.den }
 
 func (s shareRule) Nums(r []int, q []uint64) {
-	best, count := 0, 0
-	for i, x := range r {
-		v := tables.OffsetScore(x, s.half, i)
-		if count == 0 || v > best {
-			best, count = v, 1
-		} else if v == best {
-			count++
-		}
-	}
-	share := s.den / uint64(count)
-	for i, x := range r {
-		v := tables.OffsetScore(x, s.half, i)
-		if v == best {
-			q[i] = share
-		} else {
-			q[i] = 0
-		}
-	}
+	ShareNums(tables.Fallback(1<<uint(len(r))-1, r, s.half), s.den, q)
 }
 
 // Table is a table rule whose probabilities are exact fractions q/Denom
