@@ -928,10 +928,7 @@ func (m *Model) Solve(ctx context.Context) (*lp.Solution, error) {
 		}
 		sol, err := m.master.Solve(ctx)
 		if err != nil {
-			if ctx.Err() != nil {
-				return m.interrupted(fmt.Errorf("dw: master (%d cuts): %w", len(m.cuts), err))
-			}
-			return nil, fmt.Errorf("dw: master (%d cuts): %w", len(m.cuts), err)
+			return m.masterFailed(ctx, err)
 		}
 		m.iters += sol.Iterations
 		sigma = -sol.Objective
@@ -944,10 +941,7 @@ func (m *Model) Solve(ctx context.Context) (*lp.Solution, error) {
 		// The dual simplex from the basis reached gets through.
 		for try := 0; try < 3 && m.bestLB-sigma > 1e-9*math.Max(1, math.Abs(sigma)); try++ {
 			if sol, err = m.master.Solve(ctx); err != nil {
-				if ctx.Err() != nil {
-					return m.interrupted(fmt.Errorf("dw: master (%d cuts): %w", len(m.cuts), err))
-				}
-				return nil, fmt.Errorf("dw: master (%d cuts): %w", len(m.cuts), err)
+				return m.masterFailed(ctx, err)
 			}
 			m.iters += sol.Iterations
 			sigma = -sol.Objective
@@ -1097,6 +1091,17 @@ func (m *Model) centerDual() []float64 {
 		}
 	}
 	return out
+}
+
+// masterFailed is what a solve whose master solve failed with err
+// returns: the error, with the best prior so far when ctx has ended (see
+// interrupted).
+func (m *Model) masterFailed(ctx context.Context, err error) (*lp.Solution, error) {
+	err = fmt.Errorf("dw: master (%d cuts): %w", len(m.cuts), err)
+	if ctx.Err() != nil {
+		return m.interrupted(err)
+	}
+	return nil, err
 }
 
 // interrupted is what a solve that its context ended returns: err, with a
