@@ -650,9 +650,8 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 		if sol == nil || sol.RowDual == nil || res.Solution == nil {
 			return
 		}
-		if pv := f.PriorValue(f.Prior(sol.RowDual)); pv > lb {
-			sol.Objective = pv
-			res.Solution, lb = sol, pv
+		if bound(sol, false); res.Solution == sol {
+			sol.Objective = lb
 		}
 	}
 	split := opt.Split
