@@ -70,6 +70,18 @@ func WorstCaseScreened(l *tables.Layout, rule Rule, d int) (Worst, error) {
 	if err != nil {
 		return Worst{}, err
 	}
+	return WorstCaseAmong(l, rule, cands), nil
+}
+
+// WorstCaseAmong returns the largest exact regret of rule over the
+// configurations cands (in the form the fast evaluator reports them:
+// values from 0, tables.Far outside their subset), the first of them, in
+// their order, that has it. When cands hold every configuration that can
+// reach the rule's worst case, in the enumeration order of the evaluators
+// (fast.SortConfigs), the result is WorstCase's; WorstCaseScreened finds
+// such candidates with a float screen. Like the fast evaluator it needs a
+// translation-invariant rule. No candidates give a regret of 0.
+func WorstCaseAmong(l *tables.Layout, rule Rule, cands [][]int) Worst {
 	num := nums(l)
 	n := l.N()
 	var best *big.Int
@@ -95,8 +107,8 @@ func WorstCaseScreened(l *tables.Layout, rule Rule, d int) (Worst, error) {
 		}
 	}
 	if best == nil {
-		return Worst{Regret: new(big.Rat)}, nil
+		return Worst{Regret: new(big.Rat)}
 	}
 	scale := new(big.Int).Lsh(new(big.Int).SetUint64(rule.Den()), uint(discretize.DenomBits*n))
-	return Worst{Regret: new(big.Rat).SetFrac(best, scale), Values: bestV, Subset: bestQ}, nil
+	return Worst{Regret: new(big.Rat).SetFrac(best, scale), Values: bestV, Subset: bestQ}
 }

@@ -206,7 +206,6 @@ func (e Evaluator) Candidates(l *tables.Layout, rule tables.Rule, d int, tol, re
 	// with top, so a configuration below it stays below the final one.
 	floor := func(top float64) float64 { return top - tol - rel*top }
 	type cand struct {
-		sub int // index of the subset in tables.Subsets order
 		v   []int
 		reg float64
 	}
@@ -226,13 +225,13 @@ func (e Evaluator) Candidates(l *tables.Layout, rule tables.Rule, d int, tol, re
 	}
 	subsets := tables.Subsets(l.N())
 	var arrays work
-	for si, q := range subsets {
+	for _, q := range subsets {
 		err := e.regrets(l, rule, q, d, &arrays, func(v []int, reg float64) {
 			if reg < floor(top) {
 				return
 			}
 			top = max(top, reg)
-			list = append(list, cand{si, append([]int(nil), v...), reg})
+			list = append(list, cand{append([]int(nil), v...), reg})
 			if len(list) >= limit {
 				prune()
 				limit = max(limit, 2*len(list))
@@ -243,17 +242,43 @@ func (e Evaluator) Candidates(l *tables.Layout, rule tables.Rule, d int, tol, re
 		}
 	}
 	prune()
-	sort.Slice(list, func(a, b int) bool {
-		if list[a].sub != list[b].sub {
-			return list[a].sub < list[b].sub
-		}
-		return earlier(list[a].v, list[b].v, subsets[list[a].sub].Members())
-	})
 	out := make([][]int, len(list))
 	for i, c := range list {
 		out[i] = c.v
 	}
+	SortConfigs(l.N(), out)
 	return out, nil
+}
+
+// SortConfigs sorts configurations of n channels, in the form the
+// evaluators report them (tables.Far outside their subset), into the order
+// in which the evaluators enumerate them: by subset in the order of
+// tables.Subsets, then as tables.Configurations enumerates a subset's.
+// Candidates returns its configurations in this order.
+func SortConfigs(n int, vs [][]int) {
+	index := make(map[tables.Set]int)
+	for i, q := range tables.Subsets(n) {
+		index[q] = i
+	}
+	type keyed struct {
+		sub int
+		q   tables.Set
+		v   []int
+	}
+	ks := make([]keyed, len(vs))
+	for i, v := range vs {
+		q := tables.SubsetOf(v)
+		ks[i] = keyed{index[q], q, v}
+	}
+	sort.SliceStable(ks, func(a, b int) bool {
+		if ks[a].sub != ks[b].sub {
+			return ks[a].sub < ks[b].sub
+		}
+		return earlier(ks[a].v, ks[b].v, ks[a].q.Members())
+	})
+	for i, k := range ks {
+		vs[i] = k.v
+	}
 }
 
 // Regrets calls Evaluator{}.Regrets.

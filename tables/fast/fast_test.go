@@ -564,6 +564,29 @@ func TestCandidates(t *testing.T) {
 	}
 }
 
+// TestSortConfigs: SortConfigs puts configurations of every subset, in
+// any order, into the order in which tables.Subsets and
+// tables.Configurations enumerate them.
+func TestSortConfigs(t *testing.T) {
+	rng := rand.New(rand.NewPCG(5, 8))
+	const n, d = 4, 3
+	var want [][]int
+	for _, q := range tables.Subsets(n) {
+		tables.Configurations(n, q, d, func(v []int) bool {
+			want = append(want, slices.Clone(v))
+			return true
+		})
+	}
+	got := slices.Clone(want)
+	rng.Shuffle(len(got), func(i, j int) { got[i], got[j] = got[j], got[i] })
+	fast.SortConfigs(n, got)
+	for i := range want {
+		if !slices.Equal(got[i], want[i]) {
+			t.Fatalf("position %d of %d: %v, want %v", i, len(want), got[i], want[i])
+		}
+	}
+}
+
 // farRule gives probability to a channel that reads tables.Far.
 type farRule struct{}
 
