@@ -4,6 +4,7 @@ import (
 	"context"
 	"fmt"
 	"math"
+	"math/rand/v2"
 	"slices"
 	"testing"
 	"time"
@@ -395,4 +396,75 @@ func skewedModel(t testing.TB) *discretize.Model {
 		[]float64{-3, 0.11, 0.16, 0.2, 0.19, 0.34},
 		[]float64{0, 0.28, 0.1, 0.08, 0.26, 0.28},
 		[]float64{-3, 0.15, 0.16, 0.48, 0.08, 0.13})
+}
+
+// TestCGNear: the configurations that constraint generation keeps near
+// the worst case of its rule (CGResult.Near) are, in the fast evaluator's
+// order, every configuration whose regret, from a fresh evaluation of the
+// returned tables, comes within a relative NearRel of the worst case, and
+// that worst case is the largest regret; so too for a loop stopped after
+// two rounds, whose rule is a mixture of the rounds' rules.
+func TestCGNear(t *testing.T) {
+	rng := rand.New(rand.NewPCG(23, 3))
+	for _, tc := range []struct {
+		name      string
+		m         *discretize.Model
+		maxRounds int
+	}{
+		{"three channels", model(t, 1, []float64{-2, 0.1, 0.3, 0.2, 0.4}, []float64{0, 0.6, 0.25, 0.15}, []float64{-1, 0.5, 0.1, 0.4}), 0},
+		{"stopped after two rounds", model(t, 1, []float64{-2, 0.1, 0.3, 0.2, 0.4}, []float64{0, 0.6, 0.25, 0.15}, []float64{-1, 0.5, 0.1, 0.4}), 2},
+		{"random four channels", randomModel(t, rng, 4, 3), 0},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			l, err := tables.NewLayout(tc.m)
+			if err != nil {
+				t.Fatal(err)
+			}
+			res, err := minimax.SolveCG(context.Background(), l, newDW, minimax.CGOptions{Batch: 4, MaxRounds: tc.maxRounds})
+			if err != nil {
+				t.Fatal(err)
+			}
+			if res.Near == nil {
+				t.Fatal("no configurations near the worst case")
+			}
+			var want [][]int
+			top := 0.0
+			for _, q := range tables.Subsets(l.N()) {
+				err := fast.Regrets(l, res.F.Tables, q, l.D, func(v []int, reg float64) {
+					top = math.Max(top, reg)
+					if reg >= (1-minimax.NearRel)*res.WorstCase {
+						want = append(want, slices.Clone(v))
+					}
+				})
+				if err != nil {
+					t.Fatal(err)
+				}
+			}
+			if math.Abs(top-res.WorstCase) > 1e-12*top {
+				t.Errorf("worst case %.15g, the tables' largest regret %.15g", res.WorstCase, top)
+			}
+			sorted := slices.Clone(res.Near)
+			fast.SortConfigs(l.N(), sorted)
+			if !slices.EqualFunc(sorted, res.Near, slices.Equal) {
+				t.Error("Near is not in the evaluator's order")
+			}
+			keys := make(map[string]bool)
+			for _, v := range res.Near {
+				keys[fmt.Sprint(v)] = true
+			}
+			for _, v := range want {
+				if !keys[fmt.Sprint(v)] {
+					t.Fatalf("configuration %v, regret within %g of the worst case, is not near (%d near, %d want)", v, minimax.NearRel, len(res.Near), len(want))
+				}
+			}
+		})
+	}
+}
+
+func newDW(p *lp.Problem) (minimax.Incremental, error) {
+	m, err := dw.New(p)
+	if err != nil {
+		return nil, err
+	}
+	return m, nil
 }

@@ -4,8 +4,10 @@ import (
 	"context"
 	"math"
 	"math/rand/v2"
+	"slices"
 	"testing"
 
+	"github.com/pickwise/pickwise/tables/exact"
 	"github.com/pickwise/pickwise/tables/result"
 )
 
@@ -49,6 +51,19 @@ func TestConstraintGeneration(t *testing.T) {
 		}
 		if math.Abs(result.Float(c.Upper)-result.Float(d.Upper)) > 1e-9*d.Objective {
 			t.Errorf("trial %d: certified worst cases %.15g (cg) and %.15g (direct)", trial, result.Float(c.Upper), result.Float(d.Upper))
+		}
+		// The certified worst case, from the configurations that
+		// constraint generation found near it (minimax.CGResult.Near),
+		// is that of every configuration, in exact arithmetic.
+		for _, r := range []*result.Solution{c, s} {
+			et, err := exact.NewTableDen(r.Tables, r.TableDen)
+			if err != nil {
+				t.Fatal(err)
+			}
+			w := exact.WorstCase(r.Layout, et, r.Layout.D)
+			if w.Regret.Cmp(r.Upper) != 0 || !slices.Equal(w.Values, r.Optimal.Worst) {
+				t.Errorf("trial %d: certified worst case %s at %v, every configuration's %s at %v", trial, r.Upper.RatString(), r.Optimal.Worst, w.Regret.RatString(), w.Values)
+			}
 		}
 		if c.Lower.Cmp(c.Upper) > 0 || result.Float(c.Lower) > c.Objective*(1+1e-10) {
 			t.Errorf("trial %d: cg bounds [%v, %v] around %v", trial, result.Float(c.Lower), result.Float(c.Upper), c.Objective)

@@ -212,6 +212,10 @@ func Solve(ctx context.Context, m *discretize.Model, opt Options) (*Solution, er
 
 	var f *minimax.Formulation
 	var sol *lp.Solution
+	// near, when not nil, holds the configurations near the worst case
+	// of f's rule, from constraint generation (minimax.CGResult.Near).
+	var near [][]int
+	var nearWorst float64
 	t0 := time.Now()
 	switch method {
 	case MethodDirect:
@@ -264,7 +268,7 @@ func Solve(ctx context.Context, m *discretize.Model, opt Options) (*Solution, er
 		if err != nil {
 			return nil, err
 		}
-		f, sol = res.F, res.Solution
+		f, sol, near, nearWorst = res.F, res.Solution, res.Near, res.WorstCase
 		s.Converged, s.Rounds = res.Converged, res.Rounds
 		s.Rows, s.Columns, s.Nonzeros = f.Problem.NumRows(), f.Problem.NumCols(), f.Problem.NumNonzeros()
 		s.Timing.Solve = time.Since(t0)
@@ -279,7 +283,7 @@ func Solve(ctx context.Context, m *discretize.Model, opt Options) (*Solution, er
 	s.Objective, s.Iterations = sol.Objective, sol.Iterations
 
 	t2 := time.Now()
-	if s.Tables, s.TableDen, s.Optimal, err = certifyTables(l, f.Tables); err != nil {
+	if s.Tables, s.TableDen, s.Optimal, err = certifyTables(l, f.Tables, near, nearWorst); err != nil {
 		return nil, fmt.Errorf("certifying the tables: %w", err)
 	}
 	if !s.Converged {
@@ -287,13 +291,16 @@ func Solve(ctx context.Context, m *discretize.Model, opt Options) (*Solution, er
 		// outside the configurations it has seen: ship greedy's tables
 		// when their worst case is lower. The lower bound below holds
 		// for every rule.
-		gt, gden, gfig, err := certifyTables(l, GreedyTables(l))
-		if err != nil {
-			return nil, fmt.Errorf("greedy tables: %w", err)
-		}
-		if gfig.Regret.Cmp(s.Optimal.Regret) < 0 {
-			s.Tables, s.TableDen, s.Optimal = gt, gden, gfig
-			s.ShippedGreedy = true
+		greedy := GreedyTables(l)
+		if !noBetter(l, greedy, near, s.Optimal.Regret) {
+			gt, gden, gfig, err := certifyTables(l, greedy, nil, 0)
+			if err != nil {
+				return nil, fmt.Errorf("greedy tables: %w", err)
+			}
+			if gfig.Regret.Cmp(s.Optimal.Regret) < 0 {
+				s.Tables, s.TableDen, s.Optimal = gt, gden, gfig
+				s.ShippedGreedy = true
+			}
 		}
 	}
 	s.Upper = s.Optimal.Regret
@@ -333,18 +340,84 @@ func Solve(ctx context.Context, m *discretize.Model, opt Options) (*Solution, er
 
 // certifyTables snaps the probabilities of o to exact fractions
 // (exact.Rationalize) and returns the snapped tables, their common
-// denominator and their exact worst case.
-func certifyTables(l *tables.Layout, o *tables.Optimal) (*tables.Optimal, uint64, Figure, error) {
+// denominator and their exact worst case. near, when not nil, holds the
+// configurations where the float regret of o comes within a relative
+// minimax.NearRel of worst, its float worst case (minimax.CGResult.Near):
+// when the snapped tables are close enough to o for that margin to cover
+// them too (nearHolds), their exact worst case is that of these
+// configurations alone, without a float screen of every configuration.
+func certifyTables(l *tables.Layout, o *tables.Optimal, near [][]int, worst float64) (*tables.Optimal, uint64, Figure, error) {
 	t, den := exact.Rationalize(o, ProbBits)
 	et, err := exact.NewTableDen(t, den)
 	if err != nil {
 		return nil, 0, Figure{}, err
 	}
-	w, err := exact.WorstCaseScreened(l, et, l.D)
-	if err != nil {
+	var w exact.Worst
+	if len(near) > 0 && nearHolds(l, o, t, worst) {
+		w = exact.WorstCaseAmong(l, et, near)
+	} else if w, err = exact.WorstCaseScreened(l, et, l.D); err != nil {
 		return nil, 0, Figure{}, err
 	}
 	return t, den, Figure{Regret: w.Regret, Worst: w.Values}, nil
+}
+
+// noBetter reports whether the exact worst case of tables o is at least
+// w, from its exact regrets at the configurations near alone: the
+// configurations where the rule that o is compared with is at its worst
+// are likely where o is no better. False says nothing.
+func noBetter(l *tables.Layout, o *tables.Optimal, near [][]int, w *big.Rat) bool {
+	if len(near) == 0 {
+		return false
+	}
+	t, den := exact.Rationalize(o, ProbBits)
+	et, err := exact.NewTableDen(t, den)
+	if err != nil {
+		return false
+	}
+	return exact.WorstCaseAmong(l, et, near).Regret.Cmp(w) >= 0
+}
+
+// floatRel bounds the relative error of a float regret from the fast
+// evaluator, with the margin that exact.WorstCaseScreened leaves.
+const floatRel = 1e-9
+
+// nearHolds reports whether the configurations that constraint generation
+// found near the float worst case worst of o (minimax.CGResult.Near) hold
+// every configuration that can reach the exact worst case of the snapped
+// tables t. Where the probabilities of a cell move by a total of at most
+// e from o to t, the regret of a configuration moves by at most e*s, s
+// the largest regret of a channel, at most (n-1)*D steps (the values of a
+// configuration differ by at most D steps from one to the next). A
+// configuration left out had a float regret below (1-NearRel)*worst, so
+// an exact regret under t of at most (1-NearRel)*worst*(1+floatRel) +
+// e*s; the configuration of the float worst case has one of at least
+// worst*(1-floatRel) - e*s under t. When the first is below the second,
+// no configuration left out reaches the exact worst case of t.
+func nearHolds(l *tables.Layout, o, t *tables.Optimal, worst float64) bool {
+	if len(o.Tables) != len(t.Tables) || !(worst > 0) {
+		return false
+	}
+	e := 0.0
+	for i, a := range o.Tables {
+		b := t.Tables[i]
+		if a.Group != b.Group || len(a.Cells) != len(b.Cells) {
+			return false
+		}
+		for c := range a.Cells {
+			ca, cb := &a.Cells[c], &b.Cells[c]
+			if !slices.Equal(ca.Diff, cb.Diff) || ca.Alive != cb.Alive || len(ca.P) != len(cb.P) {
+				return false
+			}
+			d := 0.0
+			for k := range ca.P {
+				d += math.Abs(ca.P[k] - cb.P[k])
+			}
+			e = max(e, d)
+		}
+	}
+	move := e * float64((l.N()-1)*l.D)
+	left := (1-minimax.NearRel)*worst*(1+floatRel) + move
+	return left < worst*(1-floatRel)-move
 }
 
 // GreedyWidth returns the widening, in steps, that evaluating the greedy
