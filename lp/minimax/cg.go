@@ -615,7 +615,9 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 					if col < len(reached) && reached[col] {
 						w = mu
 					}
-					c[col] += w * (1 - p[k])
+					// A mixture's probability can pass 1 by a
+					// rounding; lp/dw refuses negative costs.
+					c[col] += w * max(0, 1-p[k])
 				}
 			}
 		})
