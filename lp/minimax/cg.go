@@ -311,11 +311,17 @@ const shapeAll = 1e-4
 // steps, [0.63553009746642, 0.635530097467252], after 22 rounds and 311
 // s of constraint generation, about 330 s in all.)
 func splitTol(worst, lb float64) float64 {
-	rel := 1.0
-	if lb > 0 {
-		rel = max(0, (worst-lb)/lb)
+	return min(1e-4, max(1e-11, relGap(worst, lb)/10))
+}
+
+// relGap returns the gap between the best rule's worst case and the lower
+// bound lb relative to lb, or 1 while there is no bound (lb 0). It is at
+// least 0: a bound can pass the best rule's worst case by a rounding.
+func relGap(worst, lb float64) float64 {
+	if lb <= 0 {
+		return 1
 	}
-	return min(1e-4, max(1e-11, rel/10))
+	return max(0, (worst-lb)/lb)
 }
 
 // solveBy solves the model, stopping at the deadline when it is not zero.
@@ -492,15 +498,15 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 		regs = regs[:0]
 		top := 0.0
 		count := 0
+		isNear := func(at int, reg float64) bool {
+			return nearCut > 0 && (reg >= nearCut || (prev != nil && prev[at] >= nearCut))
+		}
 		for _, q := range tables.Subsets(n) {
 			size := sizeOf(q)
 			list := make([]scored, 0, size)
 			var also []scored // by prev
 			from := len(regs)
 			var err error
-			isNear := func(at int, reg float64) bool {
-				return nearCut > 0 && (reg >= nearCut || (prev != nil && prev[at] >= nearCut))
-			}
 			regs, err = opt.Evaluator.Scan(l, rule, q, l.D, regs, func(at int, reg float64) bool {
 				return reg > threshold || (prev != nil && prev[at] > threshold) || isNear(at, reg)
 			}, func(at int, v []int, reg float64) {
@@ -661,12 +667,7 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 		var c []float64
 		var t float64
 		if shaped {
-			rel := 1.0
-			if lb > 0 {
-				// At least 0: a bound can pass the best rule's
-				// worst case by a rounding.
-				rel = max(0, (best.worst-lb)/lb)
-			}
+			rel := relGap(best.worst, lb)
 			t = min(shapeTol, max(1e-11, rel/10))
 			mu, far := shapeBias*min(1, rel/shapeRel), shapeBias
 			if rel < shapeAll {

@@ -359,8 +359,7 @@ func TestCGShaped(t *testing.T) {
 			if tc.split {
 				opt.Split = 1
 			}
-			newModel := func(p *lp.Problem) (minimax.Incremental, error) { return dw.New(p) }
-			res, err := minimax.SolveCG(context.Background(), l, newModel, opt)
+			res, err := minimax.SolveCG(context.Background(), l, newDW, opt)
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -461,6 +460,8 @@ func TestCGNear(t *testing.T) {
 	}
 }
 
+// newDW returns an lp/dw model of p, for SolveCG (no model, not a nil
+// *dw.Model, on an error).
 func newDW(p *lp.Problem) (minimax.Incremental, error) {
 	m, err := dw.New(p)
 	if err != nil {

@@ -5,8 +5,6 @@ import (
 	"math/rand/v2"
 	"testing"
 
-	"github.com/pickwise/pickwise/lp"
-	"github.com/pickwise/pickwise/lp/dw"
 	"github.com/pickwise/pickwise/lp/minimax"
 	"github.com/pickwise/pickwise/tables"
 )
@@ -47,8 +45,7 @@ func TestCGLPValueRises(t *testing.T) {
 					rounds = append(rounds, p.Round)
 				}
 			}}
-			newModel := func(p *lp.Problem) (minimax.Incremental, error) { return dw.New(p) }
-			if _, err := minimax.SolveCG(context.Background(), l, newModel, opt); err != nil {
+			if _, err := minimax.SolveCG(context.Background(), l, newDW, opt); err != nil {
 				t.Fatal(err)
 			}
 			for k := 1; k < len(values); k++ {

@@ -347,8 +347,7 @@ func Solve(ctx context.Context, m *discretize.Model, opt Options) (*Solution, er
 // them too (nearHolds), their exact worst case is that of these
 // configurations alone, without a float screen of every configuration.
 func certifyTables(l *tables.Layout, o *tables.Optimal, near [][]int, worst float64) (*tables.Optimal, uint64, Figure, error) {
-	t, den := exact.Rationalize(o, ProbBits)
-	et, err := exact.NewTableDen(t, den)
+	t, den, et, err := snapTables(o)
 	if err != nil {
 		return nil, 0, Figure{}, err
 	}
@@ -361,6 +360,14 @@ func certifyTables(l *tables.Layout, o *tables.Optimal, near [][]int, worst floa
 	return t, den, Figure{Regret: w.Regret, Worst: w.Values}, nil
 }
 
+// snapTables returns the tables o with exact fractions for probabilities
+// (exact.Rationalize), their common denominator, and their exact rule.
+func snapTables(o *tables.Optimal) (*tables.Optimal, uint64, *exact.Table, error) {
+	t, den := exact.Rationalize(o, ProbBits)
+	et, err := exact.NewTableDen(t, den)
+	return t, den, et, err
+}
+
 // noBetter reports whether the exact worst case of tables o is at least
 // w, from its exact regrets at the configurations near alone: the
 // configurations where the rule that o is compared with is at its worst
@@ -369,8 +376,7 @@ func noBetter(l *tables.Layout, o *tables.Optimal, near [][]int, w *big.Rat) boo
 	if len(near) == 0 {
 		return false
 	}
-	t, den := exact.Rationalize(o, ProbBits)
-	et, err := exact.NewTableDen(t, den)
+	_, _, et, err := snapTables(o)
 	if err != nil {
 		return false
 	}
