@@ -3,6 +3,7 @@ package tables
 import (
 	"fmt"
 	"math"
+	"math/bits"
 	"slices"
 )
 
@@ -12,6 +13,20 @@ import (
 // sum to 1. A Rule must be safe for concurrent use.
 type Rule interface {
 	Probs(r []int, p []float64)
+}
+
+// A RowRule is a Rule that gives its probabilities along a row of reading
+// vectors, where one channel's reading runs through consecutive steps, in
+// less time than a call of Probs per vector. The fast evaluator uses it.
+type RowRule interface {
+	Rule
+	// ProbsRow sets p[i][x], for every member mem[i] of a set of channels
+	// and x from 0 to len(p[i])-1, to the probability Probs gives to
+	// channel mem[i] at the readings r with r[c] increased by x steps. c
+	// is one of mem, no reading of mem is Far, and every channel outside
+	// mem reads Far; the rule gives those channels no probability. r is
+	// not changed.
+	ProbsRow(r []int, c int, mem []int, p [][]float64)
 }
 
 // Greedy is the rule that picks the highest reading, sharing ties equally.
@@ -28,6 +43,53 @@ type Offset struct {
 
 // Probs implements Rule.
 func (o Offset) Probs(r []int, p []float64) { argmaxShare(r, o.Half, p) }
+
+// ProbsRow implements RowRule.
+func (Greedy) ProbsRow(r []int, c int, mem []int, p [][]float64) { shareRow(r, nil, c, mem, p) }
+
+// ProbsRow implements RowRule.
+func (o Offset) ProbsRow(r []int, c int, mem []int, p [][]float64) { shareRow(r, o.Half, c, mem, p) }
+
+// shareRow is ProbsRow for argmaxShare: the members other than c give one
+// top score and its ties for the whole row, against which c's score
+// rises.
+func shareRow(r []int, half []int, c int, mem []int, p [][]float64) {
+	var tied Set
+	top, ci := 0, 0
+	for i, ch := range mem {
+		if ch == c {
+			ci = i
+			continue
+		}
+		switch s := OffsetScore(r[ch], half, ch); {
+		case tied == 0 || s > top:
+			tied, top = 1<<uint(ch), s
+		case s == top:
+			tied |= 1 << uint(ch)
+		}
+	}
+	below := 1 / float64(tied.Len())  // c below the others: their tie
+	even := 1 / float64(tied.Len()+1) // c tied with them
+	for x := range p[0] {
+		s := OffsetScore(r[c]+x, half, c)
+		for i, ch := range mem {
+			var v float64
+			switch {
+			case s > top:
+				if i == ci {
+					v = 1
+				}
+			case s == top:
+				if i == ci || tied.Has(ch) {
+					v = even
+				}
+			case tied.Has(ch):
+				v = below
+			}
+			p[i][x] = v
+		}
+	}
+}
 
 // argmaxShare sets p to the uniform distribution over the channels with the
 // highest 2*r_i + half_i (half may be nil): Fallback over every channel.
@@ -282,6 +344,130 @@ func (o *Optimal) Probs(r []int, p []float64) {
 	}
 	for i, ch := range t.Members {
 		p[ch] = t.Cells[c].P[i]
+	}
+}
+
+// ProbsRow implements RowRule. Along the row the top group and its alive
+// channels follow from the other members' readings, sorted once: the group
+// is a run of them from the highest, with c when its reading falls within
+// reach of the run, so that no vector needs the search of TopGroup.
+// Vectors where c's reading is outside the group share the probabilities
+// of the one before.
+func (o *Optimal) ProbsRow(r []int, c int, mem []int, p [][]float64) {
+	l := o.Layout
+	var rr [32]int
+	copy(rr[:], r)
+	// The other members, highest reading first: channel and reading.
+	var fch, frd [32]int
+	m := 0
+	for _, ch := range mem {
+		if ch == c {
+			continue
+		}
+		j := m
+		for ; j > 0 && frd[j-1] < r[ch]; j-- {
+			fch[j], frd[j] = fch[j-1], frd[j-1]
+		}
+		fch[j], frd[j] = ch, r[ch]
+		m++
+	}
+	// chain[j] is the last of the run from j whose consecutive gaps are
+	// at most T; set[L] and ceil[L] are the channels of the first L and
+	// the greatest r_j - hi_j among them (see Alive); alive[j] is
+	// r_j - lo_j.
+	var chain, alive [32]int
+	var set [33]Set
+	var ceil [33]int
+	for j := m - 1; j >= 0; j-- {
+		chain[j] = j
+		if j+1 < m && frd[j]-frd[j+1] <= l.T {
+			chain[j] = chain[j+1]
+		}
+	}
+	for j := range m {
+		ch := fch[j]
+		set[j+1] = set[j] | 1<<uint(ch)
+		ceil[j+1] = frd[j] - l.Hi[ch]
+		if j > 0 {
+			ceil[j+1] = max(ceil[j+1], ceil[j])
+		}
+		alive[j] = frd[j] - l.Lo[ch]
+	}
+	var col [32]float64
+	above := m  // the other members reading at or above c
+	lastL := -1 // the group of the vector before, when without c
+	for x := range p[0] {
+		v := r[c] + x
+		for above > 0 && frd[above-1] < v {
+			above--
+		}
+		// The group: the first L others, and c when in.
+		L, in := 0, false
+		switch {
+		case above > 0 && chain[0] < above-1:
+			L = chain[0] + 1
+		case above > 0 && frd[above-1]-v > l.T:
+			L = above
+		default:
+			L, in = above, true
+			if above < m && v-frd[above] <= l.T {
+				L = chain[above] + 1
+			}
+		}
+		if !in && L == lastL {
+			for i := range p {
+				p[i][x] = p[i][x-1]
+			}
+			continue
+		}
+		lastL = -1
+		if !in {
+			lastL = L
+		}
+		g := set[L]
+		var live Set
+		switch {
+		case !in && L == 1:
+			live = g
+		case in && L == 0:
+			g, live = 1<<uint(c), 1<<uint(c)
+		default:
+			top := ceil[L]
+			if in {
+				g |= 1 << uint(c)
+				top = max(top, v-l.Hi[c])
+				if v-l.Lo[c] >= top {
+					live |= 1 << uint(c)
+				}
+			}
+			for j := range L {
+				if alive[j] >= top {
+					live |= 1 << uint(fch[j])
+				}
+			}
+		}
+		rr[c] = v
+		cell := -1
+		var t *Table
+		if live.Len() > 1 {
+			t = o.byset[g]
+			cell = t.Lookup(rr[:len(r)])
+		}
+		if cell >= 0 {
+			for i, ch := range t.Members {
+				col[ch] = t.Cells[cell].P[i]
+			}
+		} else {
+			tied := Fallback(live, rr[:len(r)], o.Half)
+			w := 1 / float64(tied.Len())
+			for rest := tied; rest != 0; rest &= rest - 1 {
+				col[bits.TrailingZeros32(uint32(rest))] = w
+			}
+		}
+		for i, ch := range mem {
+			p[i][x] = col[ch]
+			col[ch] = 0
+		}
 	}
 }
 

@@ -164,3 +164,164 @@ func TestBlank(t *testing.T) {
 		t.Errorf("Blank's offsets share storage with the original's")
 	}
 }
+
+// TestProbsRow checks Optimal.ProbsRow against Probs, one vector at a
+// time, bit for bit: random tables (cells at random readings, with random
+// probabilities) on layouts of three to five channels, with and without
+// offsets for missing cells, along random rows of random subsets, the
+// other channels at Far.
+func TestProbsRow(t *testing.T) {
+	low, high, wide := []float64{-3, 1, 1, 2, 1, 1}, []float64{0, 1, 1, 2, 1, 1}, []float64{-1, 1, 2, 1, 3, 1, 2, 1}
+	for _, tc := range []struct {
+		name string
+		pmfs [][]float64
+		half []int
+	}{
+		{"three channels", [][]float64{low, high, wide}, nil},
+		{"three channels with offsets", [][]float64{low, high, wide}, []int{1, -4, 0}},
+		{"four channels with offsets", [][]float64{low, high, low, wide}, []int{2, -3, 2, 0}},
+		{"five channels", [][]float64{low, high, low, high, low}, nil},
+		{"five channels with offsets", [][]float64{low, high, low, high, low}, []int{1, -4, 2, -3, 1}},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			l := pmfModel(t, tc.pmfs...)
+			n := l.N()
+			o := NewOptimal(l)
+			o.Half = tc.half
+			rng := rand.New(rand.NewPCG(3, uint64(n)))
+			r := make([]int, n)
+			for range 3000 {
+				for c := range r {
+					r[c] = rng.IntN(2 * l.T)
+				}
+				g := l.TopGroup(r)
+				alive := l.Alive(g, r)
+				if alive.Len() < 2 {
+					continue
+				}
+				p := make([]float64, g.Len())
+				for i, ch := range g.Members() {
+					if alive.Has(ch) {
+						p[i] = rng.Float64()
+					}
+				}
+				o.Table(g).Add(r, alive, p)
+			}
+			if o.NumCells() < 300 {
+				t.Fatalf("only %d cells: the test checks little", o.NumCells())
+			}
+			q := make([]float64, n)
+			for range 2000 {
+				var mem []int
+				for len(mem) < 2 {
+					mem = mem[:0]
+					for c := range n {
+						if rng.IntN(3) > 0 {
+							mem = append(mem, c)
+						}
+					}
+				}
+				for c := range r {
+					r[c] = Far
+				}
+				for _, c := range mem {
+					r[c] = rng.IntN(3*l.T) - l.T
+				}
+				c := mem[rng.IntN(len(mem))]
+				r[c] -= rng.IntN(2 * l.T)
+				length := 1 + rng.IntN(4*l.T)
+				out := make([][]float64, len(mem))
+				for i := range out {
+					out[i] = make([]float64, length)
+				}
+				before := slices.Clone(r)
+				o.ProbsRow(r, c, mem, out)
+				if !slices.Equal(r, before) {
+					t.Fatalf("ProbsRow changed the readings %v to %v", before, r)
+				}
+				v := slices.Clone(r)
+				for x := range length {
+					v[c] = r[c] + x
+					o.Probs(v, q)
+					for i, ch := range mem {
+						if out[i][x] != q[ch] {
+							t.Fatalf("readings %v: ProbsRow gives channel %d %v, Probs %v", v, ch, out[i][x], q[ch])
+						}
+					}
+				}
+			}
+		})
+	}
+}
+
+// TestShareRow checks ProbsRow of Greedy and Offset against Probs, one
+// vector at a time, bit for bit, along random rows of random subsets,
+// with ties (readings close together, offsets of whole steps and of half
+// steps).
+func TestShareRow(t *testing.T) {
+	for _, tc := range []struct {
+		name string
+		rule RowRule
+	}{
+		{"greedy", Greedy{}},
+		{"offsets", Offset{Half: []int{2, -3, 0, 4, -1}}},
+		{"even offsets", Offset{Half: []int{2, -2, 0, 4, 0}}},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			const n = 5
+			rng := rand.New(rand.NewPCG(5, 8))
+			r := make([]int, n)
+			q := make([]float64, n)
+			ties := 0
+			for range 3000 {
+				var mem []int
+				for len(mem) < 2 {
+					mem = mem[:0]
+					for c := range n {
+						if rng.IntN(3) > 0 {
+							mem = append(mem, c)
+						}
+					}
+				}
+				for c := range r {
+					r[c] = Far
+				}
+				for _, c := range mem {
+					r[c] = rng.IntN(6)
+				}
+				c := mem[rng.IntN(len(mem))]
+				r[c] -= rng.IntN(8)
+				length := 1 + rng.IntN(12)
+				out := make([][]float64, len(mem))
+				for i := range out {
+					out[i] = make([]float64, length)
+				}
+				before := slices.Clone(r)
+				tc.rule.ProbsRow(r, c, mem, out)
+				if !slices.Equal(r, before) {
+					t.Fatalf("ProbsRow changed the readings %v to %v", before, r)
+				}
+				v := slices.Clone(r)
+				for x := range length {
+					v[c] = r[c] + x
+					tc.rule.Probs(v, q)
+					shared := 0
+					for i, ch := range mem {
+						if out[i][x] != q[ch] {
+							t.Fatalf("readings %v: ProbsRow gives channel %d %v, Probs %v", v, ch, out[i][x], q[ch])
+						}
+						if q[ch] != 0 {
+							shared++
+						}
+					}
+					if shared > 1 {
+						ties++
+					}
+				}
+			}
+			if ties < 100 {
+				t.Fatalf("only %d readings with ties: the test checks little", ties)
+			}
+		})
+	}
+}
