@@ -37,6 +37,7 @@ import (
 	"math"
 	"runtime"
 	"sort"
+	"sync/atomic"
 
 	"github.com/pickwise/pickwise/tables"
 )
@@ -120,7 +121,8 @@ func (e Evaluator) Scan(l *tables.Layout, rule tables.Rule, q tables.Set, d int,
 	if err != nil {
 		return regs, err
 	}
-	return s.scan(regs, pick, fn)
+	regs, _, err = s.scan(regs, true, pick, fn)
+	return regs, err
 }
 
 // newSubset checks the arguments and returns the evaluation of subset q
@@ -211,6 +213,11 @@ func (e Evaluator) Candidates(l *tables.Layout, rule tables.Rule, d int, tol, re
 	}
 	var list []cand
 	top := math.Inf(-1)
+	// The evaluation's goroutines read the floor of the top so far: a
+	// configuration below it is below the final floor, and the few
+	// above it are reported, from this goroutine, one at a time.
+	var least atomic.Uint64
+	least.Store(math.Float64bits(math.Inf(-1)))
 	limit := 1024
 	prune := func() {
 		k := 0
@@ -223,14 +230,21 @@ func (e Evaluator) Candidates(l *tables.Layout, rule tables.Rule, d int, tol, re
 		clear(list[k:])
 		list = list[:k]
 	}
-	subsets := tables.Subsets(l.N())
 	var arrays work
-	for _, q := range subsets {
-		err := e.regrets(l, rule, q, d, &arrays, func(v []int, reg float64) {
+	for _, q := range tables.Subsets(l.N()) {
+		s, err := e.newSubset(l, rule, q, d, &arrays)
+		if err != nil {
+			return nil, err
+		}
+		pick := func(_ int, reg float64) bool { return reg >= math.Float64frombits(least.Load()) }
+		_, _, err = s.scan(nil, false, pick, func(_ int, v []int, reg float64) {
 			if reg < floor(top) {
 				return
 			}
-			top = max(top, reg)
+			if reg > top {
+				top = reg
+				least.Store(math.Float64bits(floor(top)))
+			}
 			list = append(list, cand{append([]int(nil), v...), reg})
 			if len(list) >= limit {
 				prune()

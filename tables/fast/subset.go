@@ -43,6 +43,8 @@ type subset struct {
 	x       [][]float64 // X_i of each member over a tile's reading box
 	r       []float64   // regrets over a tile
 	need    []*spans    // what each stage needs for every configuration
+	sup0    []*spans    // where each member's X is not zero (see support)
+	sup     []*spans    // where the stages of one member can be nonzero
 	far     []int       // the channels outside the subset
 	scratch []scratch
 	fault   atomic.Bool // the rule gave probability to a channel outside the subset
@@ -91,15 +93,16 @@ func (p *planes) find(sp *spans, ax int, workers int) {
 // work holds the work arrays of an evaluation, kept from one subset to
 // the next so that each is allocated, and its memory first touched, once.
 type work struct {
-	x    [][]float64
-	r    []float64
-	need []*spans
+	x         [][]float64
+	r         []float64
+	need      []*spans
+	sup0, sup []*spans
 }
 
-// take sets s.x, s.r and s.need to arrays of w of at least xsize, rsize
-// and k+2 entries, allocating those that are too short. When the arrays
-// kept and the longer ones would take more than s's budget, w lets go of
-// its arrays first.
+// take sets s.x, s.r, s.need, s.sup0 and s.sup to arrays of w of at
+// least xsize, rsize, k+2, k+1 and k+2 entries, allocating those that are
+// too short. When the arrays kept and the longer ones would take more
+// than s's budget, w lets go of its arrays first.
 func (w *work) take(s *subset, xsize, rsize int) {
 	m := s.k + 1
 	total := 8 * float64(max(cap(w.r), rsize))
@@ -113,8 +116,10 @@ func (w *work) take(s *subset, xsize, rsize int) {
 		}
 		total += 8 * float64(n)
 	}
-	for _, sp := range w.need {
-		total += 16 * float64(cap(sp.lo))
+	for _, list := range [][]*spans{w.need, w.sup0, w.sup} {
+		for _, sp := range list {
+			total += 16 * float64(cap(sp.lo))
+		}
 	}
 	if total > float64(s.budget) {
 		*w = work{}
@@ -133,7 +138,14 @@ func (w *work) take(s *subset, xsize, rsize int) {
 	for len(w.need) < s.k+2 {
 		w.need = append(w.need, new(spans))
 	}
+	for len(w.sup0) < m {
+		w.sup0 = append(w.sup0, new(spans))
+	}
+	for len(w.sup) < s.k+2 {
+		w.sup = append(w.sup, new(spans))
+	}
 	s.x, s.r, s.need = w.x[:m], w.r[:rsize], w.need[:s.k+2]
+	s.sup0, s.sup = w.sup0[:m], w.sup[:s.k+2]
 }
 
 // pad is the number of unused values that padded leaves on each side of
@@ -227,10 +239,9 @@ func (s *subset) bytes() float64 {
 		xs *= float64(s.xext(s.tile, a))
 		rs *= float64(t)
 	}
-	// Spans: k+2 stages of at most xs / (last extent) rows, 16 bytes
-	// each, counted twice: the margin keeps the tiles, and so the order of
-	// the reports, as they have always been.
-	spans := float64(2*(s.k+2)) * 16 * xs / float64(s.xext(s.tile, s.k-1))
+	// Spans: the k+2 stages of need and of sup and the k+1 members of
+	// sup0, each at most xs / (last extent) rows of 16 bytes.
+	spans := float64(3*s.k+5) * 16 * xs / float64(s.xext(s.tile, s.k-1))
 	per := float64(len(s.l.Lo))*16 + float64(s.k)*16 + chunk*8
 	return 8*(float64(s.k+1)*xs+rs) + spans + float64(s.workers)*per
 }
@@ -244,13 +255,23 @@ func (s *subset) run(fn func(v []int, regret float64)) error {
 }
 
 // scan evaluates every tile, appends the regrets of its configurations to
-// regs and calls fn for those that pick chooses (see Evaluator.Scan).
-func (s *subset) scan(regs []float64, pick func(at int, regret float64) bool, fn func(at int, v []int, regret float64)) ([]float64, error) {
+// regs when keep is true and calls fn for those that pick chooses (see
+// Evaluator.Scan). It returns regs and the number of configurations
+// scanned. Without keep, at counts the configurations from len(regs).
+func (s *subset) scan(regs []float64, keep bool, pick func(at int, regret float64) bool, fn func(at int, v []int, regret float64)) ([]float64, int, error) {
 	v := s.farVector()
+	count := 0
 	err := s.tiles(func(ulo, ext []int, cfg *spans) {
-		regs = s.collect(regs, ulo, ext, cfg, v, pick, fn)
+		var n int
+		regs, n = s.collect(regs, len(regs)+count, keep, ulo, ext, cfg, v, pick, fn)
+		if !keep {
+			count += n
+		}
 	})
-	return regs, err
+	if keep {
+		count = len(regs)
+	}
+	return regs, count, err
 }
 
 // farVector returns a vector of the layout's length at tables.Far.
@@ -468,7 +489,7 @@ func (s *subset) regrets(ulo, ext []int) (*spans, error) {
 
 	// Values outside the spans keep whatever an earlier channel or tile
 	// left there: no needed value reads them.
-	nonzero := s.evalRule(xlo, xext, need[0])
+	nonzero := s.evalRule(xlo, xext, need[0], s.sup0)
 	if s.fault.Load() {
 		return nil, fmt.Errorf("fast: the rule gives probability to a channel outside subset %v", s.mem)
 	}
@@ -485,11 +506,21 @@ func (s *subset) regrets(ulo, ext []int) (*spans, error) {
 		for st := 1; st <= k+1; st++ {
 			s.region(&g[st], i, st, ulo)
 		}
+		// Where member i's values can be nonzero, stage by stage: the
+		// passes compute nothing else.
+		sup := make([]*spans, k+2)
+		sup[0] = s.sup0[i]
+		for ax := 0; ax < k; ax++ {
+			s.sup[ax+1] = s.supAxis(s.sup[ax+1], sup[ax], need[ax+1].ext, ax)
+			sup[ax+1] = s.sup[ax+1]
+		}
+		s.sup[k+1] = s.supDiag(s.sup[k+1], sup[k], need[k+1].ext)
+		sup[k+1] = s.sup[k+1]
 		a := s.x[i][:size]
 		for ax := 0; ax < k; ax++ {
-			s.axisPass(a, xst, ax, need[ax+1], &planes[ax], &g[ax+1], s.stageExt(ext, ax+1))
+			s.axisPass(a, xst, ax, need[ax+1], &planes[ax], &g[ax+1], s.stageExt(ext, ax+1), sup[ax+1])
 		}
-		s.diagPass(a, xst, ulo, ext, i, rs, need[k+1], &g[k+1])
+		s.diagPass(a, xst, ulo, ext, i, rs, need[k+1], &g[k+1], sup[k+1])
 	}
 	return need[k+1], nil
 }
@@ -746,6 +777,102 @@ func (s *subset) diagDilate(dst, out *spans) *spans {
 	return in
 }
 
+// The supports: for one member, the spans of the values of each stage
+// that can be nonzero. At stage 0 they hold, in every row of the needed
+// spans, the first and last reading vector where the rule picks the
+// member (evalRule); a pass makes a value nonzero only when it reads a
+// nonzero one, so the support of each later stage holds those that read
+// the support of the stage before. At most reading vectors the rule's
+// choice is certain, so the supports of the members barely overlap, and
+// the passes, which compute only within them, do a fraction of the work
+// of computing every needed value for every member.
+//
+// The passes read outside the supports as before, and find zeros there:
+// the support of a stage holds, in each row, that of the stage before in
+// the same row (the pass reads it at t = 0), so a value outside it is
+// outside the supports of every stage before, where stage 0 set it to
+// zero and no stage since wrote it.
+
+// supAxis returns the support after the pass along axis ax, rows of
+// extents ext, from the support in before it: the output at j reads the
+// input at j + t along ax, t in [0, w].
+func (s *subset) supAxis(dst, in *spans, ext []int, ax int) *spans {
+	w := s.w[ax+1]
+	k := s.k
+	out := reuse(dst, ext)
+	if ax == k-1 {
+		parallel(s.workers, (len(out.lo)+dilatePiece-1)/dilatePiece, func(_, lo, hi int) {
+			lo, hi = lo*dilatePiece, min(hi*dilatePiece, len(out.lo))
+			for r := lo; r < hi; r++ {
+				out.lo[r], out.hi[r] = in.lo[r]-w, in.hi[r]
+			}
+		})
+		return out
+	}
+	// For every index of the axes before ax, the rows of out form a run
+	// of olen rows, each the hull of the rows t*inner after it in the run
+	// of in, t in [0, w].
+	inner := prod(ext[ax+1:])
+	olen, ilen := ext[ax]*inner, in.ext[ax]*inner
+	pieces := (olen + dilatePiece - 1) / dilatePiece
+	parallel(s.workers, prod(ext[:ax])*pieces, func(_, lo, hi int) {
+		for u := lo; u < hi; u++ {
+			o, x0 := u/pieces, (u%pieces)*dilatePiece
+			x1 := min(x0+dilatePiece, olen)
+			dlo, dhi := out.lo[o*olen:][x0:x1], out.hi[o*olen:][x0:x1]
+			for j := range dlo {
+				dlo[j], dhi[j] = emptyLo, emptyHi
+			}
+			ilo, ihi := in.lo[o*ilen:][:ilen], in.hi[o*ilen:][:ilen]
+			for t := 0; t <= w; t++ {
+				slo, shi := ilo[x0+t*inner:][:x1-x0], ihi[x0+t*inner:][:x1-x0]
+				for j := range dlo {
+					dlo[j] = min(dlo[j], slo[j])
+					dhi[j] = max(dhi[j], shi[j])
+				}
+			}
+		}
+	})
+	return out
+}
+
+// supDiag returns the support after the diagonal pass, rows of extents
+// ext, from the support in before it: the output at position j of row p
+// reads the input at position j + t of row p + t (1, ..., 1), t in
+// [0, w_0].
+func (s *subset) supDiag(dst, in *spans, ext []int) *spans {
+	w0 := s.w[0]
+	out := reuse(dst, ext)
+	n := len(ext)
+	if n == 0 {
+		out.lo[0], out.hi[0] = in.lo[0]-w0, in.hi[0]
+		return out
+	}
+	ist := strides(in.ext)
+	step := 0 // one step along the diagonal of p, in rows of in
+	for _, x := range ist {
+		step += x
+	}
+	parallel(s.workers, len(out.lo), func(wk, lo, hi int) {
+		p := s.scratch[wk].idx[:n]
+		setIndex(p, ext, lo)
+		for r := lo; r < hi; r++ {
+			if r > lo {
+				next(p, ext)
+			}
+			base := dot(p, ist)
+			l, h := emptyLo, emptyHi
+			for t := 0; t <= w0; t++ {
+				if x := in.lo[base+t*step]; x <= in.hi[base+t*step] {
+					l, h = min(l, x-t), max(h, in.hi[base+t*step]-t)
+				}
+			}
+			out.lo[r], out.hi[r] = l, h
+		}
+	})
+	return out
+}
+
 // dilatePiece is the length of the runs of rows that axisDilate works on
 // at a time.
 const dilatePiece = 4096
@@ -805,8 +932,9 @@ func (s *subset) axisDilate(dst, out *spans, ax int) *spans {
 
 // evalRule sets s.x[i], over the spans need of the box of reading
 // differences with lowest corner xlo and extents xext, to the probability
-// that the rule picks member i, and reports for each member whether any of
-// these probabilities is not zero.
+// that the rule picks member i, sets sup[i] to its support at stage 0
+// (see supAxis), and reports for each member whether any of these
+// probabilities is not zero.
 //
 // (Tried and not kept: remembering, between evaluations of one table
 // rule whose tables only gain cells, the cell or forced choice of every
@@ -815,10 +943,14 @@ func (s *subset) axisDilate(dst, out *spans, ax int) *spans {
 // Five channels with 5-point pmfs: the same rounds at the same speed,
 // about 9.5 s per evaluation, and 2.3 GB more memory: reading a cell's
 // probabilities, scattered in memory, costs about what finding it did.)
-func (s *subset) evalRule(xlo, xext []int, need *spans) []bool {
+func (s *subset) evalRule(xlo, xext []int, need *spans, sup []*spans) []bool {
 	k := s.k
 	last := xext[k-1]
+	for i := range sup {
+		sup[i] = reuse(sup[i], need.ext)
+	}
 	nonzero := make([]uint32, s.workers) // bit i for member i
+	rowRule, _ := s.rule.(tables.RowRule)
 	parallel(s.workers, len(need.lo), func(w, lo, hi int) {
 		sc := &s.scratch[w]
 		r, p, xr := sc.r, sc.p, sc.x
@@ -831,6 +963,9 @@ func (s *subset) evalRule(xlo, xext []int, need *spans) []bool {
 			}
 			jlo, jhi := need.lo[row], need.hi[row]
 			if jlo > jhi {
+				for _, sp := range sup {
+					sp.lo[row], sp.hi[row] = emptyLo, emptyHi
+				}
 				continue
 			}
 			for a, x := range idx {
@@ -840,21 +975,37 @@ func (s *subset) evalRule(xlo, xext []int, need *spans) []bool {
 			for i := range xr {
 				xr[i] = s.x[i][base+jlo : base+jhi+1]
 			}
-			for j := jlo; j <= jhi; j++ {
-				r[s.mem[k]] = xlo[k-1] + j
-				s.rule.Probs(r, p)
-				for i, c := range s.mem {
-					v := p[c]
-					xr[i][j-jlo] = v
-					if v != 0 {
-						nz |= 1 << uint(i)
+			if rowRule != nil {
+				r[s.mem[k]] = xlo[k-1] + jlo
+				rowRule.ProbsRow(r, s.mem[k], s.mem, xr)
+			} else {
+				for j := jlo; j <= jhi; j++ {
+					r[s.mem[k]] = xlo[k-1] + j
+					s.rule.Probs(r, p)
+					for i, c := range s.mem {
+						xr[i][j-jlo] = p[c]
+					}
+					for _, c := range s.far {
+						if p[c] != 0 {
+							s.fault.Store(true)
+						}
 					}
 				}
-				for _, c := range s.far {
-					if p[c] != 0 {
-						s.fault.Store(true)
-					}
+			}
+			// The support: the first and last nonzero value of each
+			// member.
+			for i, x := range xr {
+				f := slices.IndexFunc(x, func(v float64) bool { return v != 0 })
+				if f < 0 {
+					sup[i].lo[row], sup[i].hi[row] = emptyLo, emptyHi
+					continue
 				}
+				l := len(x) - 1
+				for x[l] == 0 {
+					l--
+				}
+				sup[i].lo[row], sup[i].hi[row] = jlo+f, jlo+l
+				nz |= 1 << uint(i)
 			}
 		}
 		nonzero[w] |= nz
@@ -870,10 +1021,11 @@ func (s *subset) evalRule(xlo, xext []int, need *spans) []bool {
 
 // axisPass replaces a by its correlation along axis ax with the noise
 // pmf of member ax+1, over the spans out of the output (whose extents are
-// outExt) within the region g: out[.., j, ..] = sum_t p[t] in[.., j+t, ..],
-// with t in increasing order. The result stays at the low indices, in
-// place.
-func (s *subset) axisPass(a []float64, st []int, ax int, out *spans, pl *planes, g *region, outExt []int) {
+// outExt) within the region g and the support outSup:
+// out[.., j, ..] = sum_t p[t] in[.., j+t, ..], with t in increasing order,
+// the terms outside the support inSup of the input left out (they are
+// zero). The result stays at the low indices, in place.
+func (s *subset) axisPass(a []float64, st []int, ax int, out *spans, pl *planes, g *region, outExt []int, sup *spans) {
 	k := s.k
 	pa := s.p[ax+1]
 	if ax == k-1 {
@@ -887,7 +1039,8 @@ func (s *subset) axisPass(a []float64, st []int, ax int, out *spans, pl *planes,
 				if out.lo[row] > out.hi[row] {
 					continue
 				}
-				if jlo, jhi := g.clip(idx, out.lo[row], out.hi[row]); jlo <= jhi {
+				jlo, jhi := g.clip(idx, max(out.lo[row], sup.lo[row]), min(out.hi[row], sup.hi[row]))
+				if jlo <= jhi {
 					correlate(a[dot(idx, st):], pa, jlo, jhi)
 				}
 			}
@@ -929,7 +1082,7 @@ func (s *subset) axisPass(a []float64, st []int, ax int, out *spans, pl *planes,
 					if out.lo[row] > out.hi[row] {
 						continue
 					}
-					jlo, jhi := g.clip(idx, out.lo[row], out.hi[row])
+					jlo, jhi := g.clip(idx, max(out.lo[row], sup.lo[row]), min(out.hi[row], sup.hi[row]))
 					a0, a1 := max(jlo, e0), min(jhi+1, e1)
 					if a0 >= a1 {
 						continue
@@ -1003,7 +1156,7 @@ func rows(tmp, src []float64, stride int, p []float64) {
 // P_i(u) = sum_t p_0[t] Y_i(u - (lo_0+t)·1) and a holds Y_i with its lowest
 // corner at u_lo - hi_0·1: the pass along the diagonal for the noise of
 // member 0.
-func (s *subset) diagPass(a []float64, st, ulo, ext []int, i int, rs []float64, out *spans, g *region) {
+func (s *subset) diagPass(a []float64, st, ulo, ext []int, i int, rs []float64, out *spans, g *region, sup *spans) {
 	k := s.k
 	w0 := s.w[0]
 	// Reversed so that t runs over the offsets of a in increasing order:
@@ -1034,7 +1187,7 @@ func (s *subset) diagPass(a []float64, st, ulo, ext []int, i int, rs []float64, 
 			if out.lo[row] > out.hi[row] {
 				continue
 			}
-			jlo, jhi := g.clip(idx, out.lo[row], out.hi[row])
+			jlo, jhi := g.clip(idx, max(out.lo[row], sup.lo[row]), min(out.hi[row], sup.hi[row]))
 			e0 := c * chunk
 			a0, a1 := max(jlo, e0), min(jhi+1, e0+chunk, lastLen)
 			if a0 >= a1 {
@@ -1114,11 +1267,13 @@ func (s *subset) config(v, ulo, idx []int, fixed, j int) {
 	v[s.mem[k]] = ul - lowest
 }
 
-// collect appends the regrets of the configurations of a tile (the spans
-// cfg), in the order of report, to regs, and calls fn, in that order, for
-// those that pick chooses. The regrets are copied and pick is called from
-// s.workers goroutines; fn from the calling one.
-func (s *subset) collect(regs []float64, ulo, ext []int, cfg *spans, v []int, pick func(at int, regret float64) bool, fn func(at int, v []int, regret float64)) []float64 {
+// collect reports the configurations of a tile (the spans cfg), in the
+// order of report, numbered from base: it appends their regrets to regs
+// when keep is true (base is then len(regs)), and calls fn, in that order,
+// for those that pick chooses. The regrets are copied and pick is called
+// from s.workers goroutines; fn from the calling one. It returns regs and
+// the number of configurations.
+func (s *subset) collect(regs []float64, base int, keep bool, ulo, ext []int, cfg *spans, v []int, pick func(at int, regret float64) bool, fn func(at int, v []int, regret float64)) ([]float64, int) {
 	k := s.k
 	last := ext[k-1]
 	nrows := len(cfg.lo)
@@ -1126,8 +1281,9 @@ func (s *subset) collect(regs []float64, ulo, ext []int, cfg *spans, v []int, pi
 	for row := range nrows {
 		off[row+1] = off[row] + max(0, cfg.hi[row]-cfg.lo[row]+1)
 	}
-	base := len(regs)
-	regs = slices.Grow(regs, off[nrows])[:base+off[nrows]]
+	if keep {
+		regs = slices.Grow(regs, off[nrows])[:base+off[nrows]]
+	}
 	picked := make([]bool, nrows)
 	parallel(s.workers, nrows, func(_, lo, hi int) {
 		for row := lo; row < hi; row++ {
@@ -1137,7 +1293,9 @@ func (s *subset) collect(regs []float64, ulo, ext []int, cfg *spans, v []int, pi
 			}
 			src := s.r[row*last+jlo : row*last+jhi+1]
 			at := base + off[row]
-			copy(regs[at:at+len(src)], src)
+			if keep {
+				copy(regs[at:at+len(src)], src)
+			}
 			for e, x := range src {
 				if pick(at+e, x) {
 					picked[row] = true
@@ -1158,11 +1316,11 @@ func (s *subset) collect(regs []float64, ulo, ext []int, cfg *spans, v []int, pi
 		jlo := cfg.lo[row]
 		for j := jlo; j <= cfg.hi[row]; j++ {
 			at := base + off[row] + j - jlo
-			if x := regs[at]; pick(at, x) {
+			if x := s.r[row*last+j]; pick(at, x) {
 				s.config(v, ulo, idx, fixed, j)
 				fn(at, v, x)
 			}
 		}
 	}
-	return regs
+	return regs, off[nrows]
 }
