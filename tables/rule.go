@@ -130,15 +130,24 @@ type Table struct {
 	Cells   []Cell
 	span    int // largest |difference| of a key entry: T*(|group|-1)
 	// The cell of each key: dense holds index+1 per key (0: no cell)
-	// when the keys fit in maxDense entries, index otherwise.
-	dense []int32
-	index map[int64]int32
+	// when the keys fit in maxDense entries. Otherwise, when the pages of
+	// 2*span+1 keys (all but the lowest digit of the key equal) do,
+	// pageOf holds, per page, 0 or the number of its entries in pages,
+	// which hold index+1 per key (the pages of keys with cells only); and
+	// index, a map, past that.
+	dense  []int32
+	pageOf []int32
+	pages  []int32
+	index  map[int64]int32
 }
 
 // maxDense is the largest number of keys that a table indexes in a flat
-// array (4 bytes per key) instead of a map: 2^25 keys, 128 MiB. Lookups
-// in the array take a fraction of a map's time, and the solvers look up
-// cells for every noise outcome of every configuration they touch.
+// array (4 bytes per key), and the largest number of pages in a paged
+// one, instead of a map: 2^25, 128 MiB. Lookups in the array take a
+// fraction of a map's time, and the solvers and the fast evaluator look
+// up cells for every noise outcome of every configuration they touch
+// (five channels with 15-step reach: the table of all five has 121^4 keys
+// and 121^3 pages).
 const maxDense = 1 << 25
 
 // NewTable returns an empty table for group g under layout l.
@@ -149,10 +158,17 @@ func NewTable(l *Layout, g Set) *Table {
 
 // keys returns the number of distinct keys of the table, or -1 when it
 // exceeds maxDense.
-func (t *Table) keys() int {
+func (t *Table) keys() int { return t.power(len(t.Members) - 1) }
+
+// numPages returns the number of pages of the keys (see Table), or -1
+// when it exceeds maxDense.
+func (t *Table) numPages() int { return t.power(len(t.Members) - 2) }
+
+// power returns (2*span+1)^e, or -1 when it exceeds maxDense.
+func (t *Table) power(e int) int {
 	base := 2*t.span + 1
 	n := 1
-	for range len(t.Members) - 1 {
+	for range e {
 		if n > maxDense/base {
 			return -1
 		}
@@ -166,6 +182,14 @@ func (t *Table) find(k int64) int {
 	if t.dense != nil {
 		return int(t.dense[k]) - 1
 	}
+	if t.pageOf != nil {
+		base := int64(2*t.span + 1)
+		pg := t.pageOf[k/base]
+		if pg == 0 {
+			return -1
+		}
+		return int(t.pages[int64(pg-1)*base+k%base]) - 1
+	}
 	if c, ok := t.index[k]; ok {
 		return int(c)
 	}
@@ -175,18 +199,30 @@ func (t *Table) find(k int64) int {
 // store records that key k is the cell c, allocating the index on first
 // use.
 func (t *Table) store(k int64, c int) {
-	if t.dense == nil && t.index == nil {
+	if t.dense == nil && t.pageOf == nil && t.index == nil {
 		if n := t.keys(); n > 0 {
 			t.dense = make([]int32, n)
+		} else if n := t.numPages(); n > 0 {
+			t.pageOf = make([]int32, n)
 		} else {
 			t.index = make(map[int64]int32)
 		}
 	}
-	if t.dense != nil {
+	switch {
+	case t.dense != nil:
 		t.dense[k] = int32(c + 1)
-		return
+	case t.pageOf != nil:
+		base := int64(2*t.span + 1)
+		pg := t.pageOf[k/base]
+		if pg == 0 {
+			t.pages = append(t.pages, make([]int32, base)...)
+			pg = int32(int64(len(t.pages)) / base)
+			t.pageOf[k/base] = pg
+		}
+		t.pages[int64(pg-1)*base+k%base] = int32(c + 1)
+	default:
+		t.index[k] = int32(c)
 	}
-	t.index[k] = int32(c)
 }
 
 // Key packs the reading differences of the group's members, relative to the

@@ -7,8 +7,8 @@ import (
 )
 
 // TestTableIndex checks that a table finds its cells the same way with a
-// flat index and with a map, and that Add returns existing cells: random
-// readings, some repeated, some out of the table's range.
+// flat index, with pages and with a map, and that Add returns existing
+// cells: random readings, some repeated, some out of the table's range.
 func TestTableIndex(t *testing.T) {
 	for _, tc := range []struct {
 		name    string
@@ -22,8 +22,9 @@ func TestTableIndex(t *testing.T) {
 		t.Run(tc.name, func(t *testing.T) {
 			g := Set(1<<uint(tc.members) - 1)
 			newTable := func() *Table { return &Table{Group: g, Members: g.Members(), span: tc.span} }
-			flat, hashed := newTable(), newTable()
-			hashed.index = make(map[int64]int32) // forces the map
+			flat, paged, hashed := newTable(), newTable(), newTable()
+			paged.pageOf = make([]int32, paged.numPages()) // forces the pages
+			hashed.index = make(map[int64]int32)           // forces the map
 			rng := rand.New(rand.NewPCG(1, uint64(tc.members)))
 			r := make([]int, tc.members)
 			for range 400 {
@@ -31,19 +32,22 @@ func TestTableIndex(t *testing.T) {
 					r[i] = rng.IntN(2*tc.span+5) - tc.span - 2
 				}
 				want := hashed.Lookup(r)
-				if got := flat.Lookup(r); got != want {
-					t.Fatalf("Lookup(%v): flat %d, map %d", r, got, want)
+				if got, pg := flat.Lookup(r), paged.Lookup(r); got != want || pg != want {
+					t.Fatalf("Lookup(%v): flat %d, pages %d, map %d", r, got, pg, want)
 				}
-				a, b := flat.Add(r, g, nil), hashed.Add(r, g, nil)
-				if a != b || (want >= 0 && a != want) {
-					t.Fatalf("Add(%v): flat %d, map %d, existing %d", r, a, b, want)
+				a, p, b := flat.Add(r, g, nil), paged.Add(r, g, nil), hashed.Add(r, g, nil)
+				if a != b || p != b || (want >= 0 && a != want) {
+					t.Fatalf("Add(%v): flat %d, pages %d, map %d, existing %d", r, a, p, b, want)
 				}
 				if _, ok := flat.Key(r); ok != (a >= 0) {
 					t.Fatalf("Add(%v) = %d with key in range %v", r, a, ok)
 				}
 			}
-			if flat.dense == nil || flat.index != nil {
+			if flat.dense == nil || flat.pageOf != nil || flat.index != nil {
 				t.Errorf("the small table is not indexed by a flat array")
+			}
+			if n := len(paged.pages) / (2*tc.span + 1); n < 1 || n > len(paged.Cells) {
+				t.Errorf("%d pages for %d cells", n, len(paged.Cells))
 			}
 			if len(flat.Cells) != len(hashed.Cells) || len(flat.Cells) == 0 {
 				t.Errorf("%d cells with the flat index, %d with the map", len(flat.Cells), len(hashed.Cells))
