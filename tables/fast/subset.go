@@ -511,7 +511,7 @@ func (s *subset) regrets(ulo, ext []int) (*spans, error) {
 		sup := make([]*spans, k+2)
 		sup[0] = s.sup0[i]
 		for ax := 0; ax < k; ax++ {
-			s.sup[ax+1] = s.supAxis(s.sup[ax+1], sup[ax], need[ax+1].ext, ax)
+			s.sup[ax+1] = s.supAxis(s.sup[ax+1], sup[ax], need[ax+1].ext, ax, &planes[ax])
 			sup[ax+1] = s.sup[ax+1]
 		}
 		s.sup[k+1] = s.supDiag(s.sup[k+1], sup[k], need[k+1].ext)
@@ -795,8 +795,15 @@ func (s *subset) diagDilate(dst, out *spans) *spans {
 
 // supAxis returns the support after the pass along axis ax, rows of
 // extents ext, from the support in before it: the output at j reads the
-// input at j + t along ax, t in [0, w].
-func (s *subset) supAxis(dst, in *spans, ext []int, ax int) *spans {
+// input at j + t along ax, t in [0, w]. For ax < k-1, pl holds the planes
+// of the needed spans of the output.
+//
+// Where the needed spans of a stage are empty, so may its support be:
+// the needed values of the next stage read only needed values of this
+// one, and a value outside the support of a stage is then outside those
+// of the stages before it wherever it is needed, which is all that the
+// zeros of the passes' reads (see above) rest on.
+func (s *subset) supAxis(dst, in *spans, ext []int, ax int, pl *planes) *spans {
 	w := s.w[ax+1]
 	k := s.k
 	out := reuse(dst, ext)
@@ -809,26 +816,39 @@ func (s *subset) supAxis(dst, in *spans, ext []int, ax int) *spans {
 		})
 		return out
 	}
-	// For every index of the axes before ax, the rows of out form a run
-	// of olen rows, each the hull of the rows t*inner after it in the run
-	// of in, t in [0, w].
-	inner := prod(ext[ax+1:])
-	olen, ilen := ext[ax]*inner, in.ext[ax]*inner
-	pieces := (olen + dilatePiece - 1) / dilatePiece
-	parallel(s.workers, prod(ext[:ax])*pieces, func(_, lo, hi int) {
-		for u := lo; u < hi; u++ {
-			o, x0 := u/pieces, (u%pieces)*dilatePiece
-			x1 := min(x0+dilatePiece, olen)
-			dlo, dhi := out.lo[o*olen:][x0:x1], out.hi[o*olen:][x0:x1]
-			for j := range dlo {
-				dlo[j], dhi[j] = emptyLo, emptyHi
+	// Row (o, j, r) of out, o the indices of the axes before ax and r
+	// those after it, is the hull of the rows (o, j+t, r) of in, t in
+	// [0, w], where the needed spans of out may not be empty (pl);
+	// elsewhere it is empty, which drops nothing that a needed value
+	// reads (see supAxis).
+	outer, jn, inner := prod(ext[:ax]), ext[ax], prod(ext[ax+1:])
+	ijn := in.ext[ax]
+	parallel(s.workers, outer*jn, func(_, lo, hi int) {
+		for p := lo; p < hi; p++ {
+			o, j := p/jn, p%jn
+			dlo, dhi := out.lo[p*inner:][:inner], out.hi[p*inner:][:inner]
+			f, l := min(pl.first[p], inner), min(pl.last[p], inner-1)
+			if f > l {
+				f, l = inner, inner-1
 			}
-			ilo, ihi := in.lo[o*ilen:][:ilen], in.hi[o*ilen:][:ilen]
+			for r := range inner {
+				if r < f || r > l {
+					dlo[r], dhi[r] = emptyLo, emptyHi
+				}
+			}
+			if f > l {
+				continue
+			}
+			dlo, dhi = dlo[f:l+1], dhi[f:l+1]
+			for r := range dlo {
+				dlo[r], dhi[r] = emptyLo, emptyHi
+			}
 			for t := 0; t <= w; t++ {
-				slo, shi := ilo[x0+t*inner:][:x1-x0], ihi[x0+t*inner:][:x1-x0]
-				for j := range dlo {
-					dlo[j] = min(dlo[j], slo[j])
-					dhi[j] = max(dhi[j], shi[j])
+				row := (o*ijn + j + t) * inner
+				slo, shi := in.lo[row+f:][:len(dlo)], in.hi[row+f:][:len(dlo)]
+				for r := range dlo {
+					dlo[r] = min(dlo[r], slo[r])
+					dhi[r] = max(dhi[r], shi[r])
 				}
 			}
 		}
