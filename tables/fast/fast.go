@@ -19,8 +19,9 @@
 // configurations reach through the noise times the sum of the noise
 // spreads, instead of the number of configurations times the product of
 // the spreads. Each pass computes only the values that the configurations
-// need, and channel i only where it is not the highest; large boxes are
-// split into tiles that fit a memory budget.
+// need, and channel i only where it is not the highest and where its
+// values can be nonzero (near readings where the rule picks it); large
+// boxes are split into tiles that fit a memory budget.
 //
 // Every sum has non-negative terms in a fixed order, so results do not
 // depend on the number of goroutines or tiles, and the relative error of a

@@ -1041,10 +1041,9 @@ func (s *subset) evalRule(xlo, xext []int, need *spans, sup []*spans) []bool {
 
 // axisPass replaces a by its correlation along axis ax with the noise
 // pmf of member ax+1, over the spans out of the output (whose extents are
-// outExt) within the region g and the support outSup:
-// out[.., j, ..] = sum_t p[t] in[.., j+t, ..], with t in increasing order,
-// the terms outside the support inSup of the input left out (they are
-// zero). The result stays at the low indices, in place.
+// outExt) within the region g and the output's support sup:
+// out[.., j, ..] = sum_t p[t] in[.., j+t, ..], with t in increasing order.
+// The result stays at the low indices, in place.
 func (s *subset) axisPass(a []float64, st []int, ax int, out *spans, pl *planes, g *region, outExt []int, sup *spans) {
 	k := s.k
 	pa := s.p[ax+1]
@@ -1175,7 +1174,7 @@ func rows(tmp, src []float64, stride int, p []float64) {
 // out) within the region g, (max u - u_i) P_i(u), where
 // P_i(u) = sum_t p_0[t] Y_i(u - (lo_0+t)·1) and a holds Y_i with its lowest
 // corner at u_lo - hi_0·1: the pass along the diagonal for the noise of
-// member 0.
+// member 0. It skips the configurations outside the support sup of P_i.
 func (s *subset) diagPass(a []float64, st, ulo, ext []int, i int, rs []float64, out *spans, g *region, sup *spans) {
 	k := s.k
 	w0 := s.w[0]
