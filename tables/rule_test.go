@@ -214,45 +214,8 @@ func TestProbsRow(t *testing.T) {
 			if o.NumCells() < 300 {
 				t.Fatalf("only %d cells: the test checks little", o.NumCells())
 			}
-			q := make([]float64, n)
 			for range 2000 {
-				var mem []int
-				for len(mem) < 2 {
-					mem = mem[:0]
-					for c := range n {
-						if rng.IntN(3) > 0 {
-							mem = append(mem, c)
-						}
-					}
-				}
-				for c := range r {
-					r[c] = Far
-				}
-				for _, c := range mem {
-					r[c] = rng.IntN(3*l.T) - l.T
-				}
-				c := mem[rng.IntN(len(mem))]
-				r[c] -= rng.IntN(2 * l.T)
-				length := 1 + rng.IntN(4*l.T)
-				out := make([][]float64, len(mem))
-				for i := range out {
-					out[i] = make([]float64, length)
-				}
-				before := slices.Clone(r)
-				o.ProbsRow(r, c, mem, out)
-				if !slices.Equal(r, before) {
-					t.Fatalf("ProbsRow changed the readings %v to %v", before, r)
-				}
-				v := slices.Clone(r)
-				for x := range length {
-					v[c] = r[c] + x
-					o.Probs(v, q)
-					for i, ch := range mem {
-						if out[i][x] != q[ch] {
-							t.Fatalf("readings %v: ProbsRow gives channel %d %v, Probs %v", v, ch, out[i][x], q[ch])
-						}
-					}
-				}
+				checkRandomRow(t, o, rng, n, -l.T, 3*l.T, 2*l.T, 4*l.T)
 			}
 		})
 	}
@@ -272,60 +235,71 @@ func TestShareRow(t *testing.T) {
 		{"even offsets", Offset{Half: []int{2, -2, 0, 4, 0}}},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
-			const n = 5
 			rng := rand.New(rand.NewPCG(5, 8))
-			r := make([]int, n)
-			q := make([]float64, n)
 			ties := 0
 			for range 3000 {
-				var mem []int
-				for len(mem) < 2 {
-					mem = mem[:0]
-					for c := range n {
-						if rng.IntN(3) > 0 {
-							mem = append(mem, c)
-						}
-					}
-				}
-				for c := range r {
-					r[c] = Far
-				}
-				for _, c := range mem {
-					r[c] = rng.IntN(6)
-				}
-				c := mem[rng.IntN(len(mem))]
-				r[c] -= rng.IntN(8)
-				length := 1 + rng.IntN(12)
-				out := make([][]float64, len(mem))
-				for i := range out {
-					out[i] = make([]float64, length)
-				}
-				before := slices.Clone(r)
-				tc.rule.ProbsRow(r, c, mem, out)
-				if !slices.Equal(r, before) {
-					t.Fatalf("ProbsRow changed the readings %v to %v", before, r)
-				}
-				v := slices.Clone(r)
-				for x := range length {
-					v[c] = r[c] + x
-					tc.rule.Probs(v, q)
-					shared := 0
-					for i, ch := range mem {
-						if out[i][x] != q[ch] {
-							t.Fatalf("readings %v: ProbsRow gives channel %d %v, Probs %v", v, ch, out[i][x], q[ch])
-						}
-						if q[ch] != 0 {
-							shared++
-						}
-					}
-					if shared > 1 {
-						ties++
-					}
-				}
+				ties += checkRandomRow(t, tc.rule, rng, 5, 0, 6, 8, 12)
 			}
 			if ties < 100 {
 				t.Fatalf("only %d readings with ties: the test checks little", ties)
 			}
 		})
 	}
+}
+
+// checkRandomRow draws a subset of n channels at random (the others read
+// Far), readings of its members in [lo, lo+spread), the running channel
+// moved down by less than back steps, and a row of 1 to maxLen vectors,
+// and checks rule.ProbsRow against Probs along it, bit for bit. It returns
+// the number of vectors where more than one channel gets probability.
+func checkRandomRow(t *testing.T, rule RowRule, rng *rand.Rand, n, lo, spread, back, maxLen int) int {
+	t.Helper()
+	var mem []int
+	for len(mem) < 2 {
+		mem = mem[:0]
+		for c := range n {
+			if rng.IntN(3) > 0 {
+				mem = append(mem, c)
+			}
+		}
+	}
+	r := make([]int, n)
+	for c := range r {
+		r[c] = Far
+	}
+	for _, c := range mem {
+		r[c] = lo + rng.IntN(spread)
+	}
+	c := mem[rng.IntN(len(mem))]
+	r[c] -= rng.IntN(back)
+	length := 1 + rng.IntN(maxLen)
+	out := make([][]float64, len(mem))
+	for i := range out {
+		out[i] = make([]float64, length)
+	}
+	before := slices.Clone(r)
+	rule.ProbsRow(r, c, mem, out)
+	if !slices.Equal(r, before) {
+		t.Fatalf("ProbsRow changed the readings %v to %v", before, r)
+	}
+	v := slices.Clone(r)
+	q := make([]float64, n)
+	shared := 0
+	for x := range length {
+		v[c] = r[c] + x
+		rule.Probs(v, q)
+		picked := 0
+		for i, ch := range mem {
+			if out[i][x] != q[ch] {
+				t.Fatalf("readings %v: ProbsRow gives channel %d %v, Probs %v", v, ch, out[i][x], q[ch])
+			}
+			if q[ch] != 0 {
+				picked++
+			}
+		}
+		if picked > 1 {
+			shared++
+		}
+	}
+	return shared
 }
