@@ -132,9 +132,9 @@ type Table struct {
 	// The cell of each key: dense holds index+1 per key (0: no cell)
 	// when the keys fit in maxDense entries. Otherwise, when the pages of
 	// 2*span+1 keys (all but the lowest digit of the key equal) do,
-	// pageOf holds, per page, 0 or the number of its entries in pages,
-	// which hold index+1 per key (the pages of keys with cells only); and
-	// index, a map, past that.
+	// pageOf holds, per page, 0 or one more than its place in pages, which
+	// hold index+1 per key for the pages that have cells; and index, a
+	// map, past that.
 	dense  []int32
 	pageOf []int32
 	pages  []int32

@@ -122,8 +122,7 @@ func (e Evaluator) Scan(l *tables.Layout, rule tables.Rule, q tables.Set, d int,
 	if err != nil {
 		return regs, err
 	}
-	regs, _, err = s.scan(regs, true, pick, fn)
-	return regs, err
+	return s.scan(regs, true, pick, fn)
 }
 
 // newSubset checks the arguments and returns the evaluation of subset q
@@ -238,7 +237,7 @@ func (e Evaluator) Candidates(l *tables.Layout, rule tables.Rule, d int, tol, re
 			return nil, err
 		}
 		pick := func(_ int, reg float64) bool { return reg >= math.Float64frombits(least.Load()) }
-		_, _, err = s.scan(nil, false, pick, func(_ int, v []int, reg float64) {
+		_, err = s.scan(nil, false, pick, func(_ int, v []int, reg float64) {
 			if reg < floor(top) {
 				return
 			}

@@ -256,22 +256,17 @@ func (s *subset) run(fn func(v []int, regret float64)) error {
 
 // scan evaluates every tile, appends the regrets of its configurations to
 // regs when keep is true and calls fn for those that pick chooses (see
-// Evaluator.Scan). It returns regs and the number of configurations
-// scanned. Without keep, at counts the configurations from len(regs).
-func (s *subset) scan(regs []float64, keep bool, pick func(at int, regret float64) bool, fn func(at int, v []int, regret float64)) ([]float64, int, error) {
+// Evaluator.Scan), and returns regs. Without keep, at counts the
+// configurations from len(regs) all the same.
+func (s *subset) scan(regs []float64, keep bool, pick func(at int, regret float64) bool, fn func(at int, v []int, regret float64)) ([]float64, error) {
 	v := s.farVector()
-	count := 0
+	at := len(regs)
 	err := s.tiles(func(ulo, ext []int, cfg *spans) {
 		var n int
-		regs, n = s.collect(regs, len(regs)+count, keep, ulo, ext, cfg, v, pick, fn)
-		if !keep {
-			count += n
-		}
+		regs, n = s.collect(regs, at, keep, ulo, ext, cfg, v, pick, fn)
+		at += n
 	})
-	if keep {
-		count = len(regs)
-	}
-	return regs, count, err
+	return regs, err
 }
 
 // farVector returns a vector of the layout's length at tables.Far.
