@@ -733,6 +733,9 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 	// when the set has not grown since and the solve was as tight as the
 	// next would be, its bound stands, and the round is shaped alone.
 	exactConfigs, exactTol := -1, 0.0
+	// boundReached reports whether the bound has reached the best rule's
+	// worst case, within the tolerance.
+	boundReached := func() bool { return best.worst <= lb*(1+tol)+1e-12 }
 	for round := 1; ; round++ {
 		splits := !shaped && shaper != nil && split >= 0 && len(best.regs) >= split
 		stol := splitTol(best.worst, lb)
@@ -757,8 +760,7 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 				return failed(round, err)
 			}
 			bound(sol, true)
-			if best.worst <= lb*(1+tol)+1e-12 {
-				// The bound has reached the best rule.
+			if boundReached() {
 				return finish(true)
 			}
 			shaped = true
@@ -843,7 +845,7 @@ func SolveCG(ctx context.Context, l *tables.Layout, newModel func(*lp.Problem) (
 			opt.Progress(Progress{Round: round, Configs: f.NumConfigs(), LPValue: value, Shaped: shaped,
 				WorstCase: top, Best: best.worst, Violations: count, Elapsed: time.Since(start)})
 		}
-		if optimal || best.worst <= lb*(1+tol)+1e-12 {
+		if optimal || boundReached() {
 			return finish(true)
 		}
 		if len(viol) == 0 && !shaped {

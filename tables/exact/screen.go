@@ -47,11 +47,12 @@ func (f floatRule) Probs(r []int, p []float64) {
 	}
 }
 
-// screenTol is the relative margin of the float screen. The fast evaluator
+// ScreenTol is the relative margin of the float screen: a bound on the
+// relative error of a regret from the fast evaluator. The fast evaluator
 // sums non-negative terms, so its relative error is a small multiple of
 // the number of terms times 2^-53; 1e-9 leaves a margin of several orders
 // of magnitude for every model pickwise can solve.
-const screenTol = 1e-9
+const ScreenTol = 1e-9
 
 // WorstCaseScreened returns the same exact worst case as WorstCase, with
 // the same configuration, but evaluates exactly only the configurations
@@ -66,7 +67,7 @@ func WorstCaseScreened(l *tables.Layout, rule Rule, d int) (Worst, error) {
 	if f, ok := rule.(Floater); ok {
 		fr = f.Float()
 	}
-	cands, err := fast.Candidates(l, fr, d, screenTol, screenTol)
+	cands, err := fast.Candidates(l, fr, d, ScreenTol, ScreenTol)
 	if err != nil {
 		return Worst{}, err
 	}

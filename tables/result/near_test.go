@@ -1,13 +1,13 @@
-package result
+package result_test
 
 import (
 	"math/big"
 	"testing"
 
-	"github.com/pickwise/pickwise/discretize"
 	"github.com/pickwise/pickwise/tables"
 	"github.com/pickwise/pickwise/tables/exact"
 	"github.com/pickwise/pickwise/tables/fast"
+	"github.com/pickwise/pickwise/tables/result"
 )
 
 // TestNearChecks: nearHolds accepts tables whose snapped probabilities
@@ -16,28 +16,20 @@ import (
 // says greedy's tables are no better than a rule only when their exact
 // worst case, over every configuration, is at least its worst case.
 func TestNearChecks(t *testing.T) {
-	m := &discretize.Model{Step: 1}
-	for i, w := range [][]float64{{-1, 0.2, 0.5, 0.3}, {0, 0.6, 0.4}, {-1, 0.3, 0.1, 0.6}} {
-		p, err := discretize.Quantize(int(w[0]), w[1:])
-		if err != nil {
-			t.Fatal(err)
-		}
-		m.Channels = append(m.Channels, discretize.Channel{Name: string(rune('a' + i)), Kind: "pmf", PMF: p})
-	}
-	l, err := tables.NewLayout(m)
+	l, err := tables.NewLayout(model(t, 1, []float64{-1, 0.2, 0.5, 0.3}, []float64{0, 0.6, 0.4}, []float64{-1, 0.3, 0.1, 0.6}))
 	if err != nil {
 		t.Fatal(err)
 	}
-	g := GreedyTables(l)
+	g := result.GreedyTables(l)
 	fw, err := fast.WorstCase(l, g, l.D)
 	if err != nil {
 		t.Fatal(err)
 	}
-	snapped, den := exact.Rationalize(g, ProbBits)
-	if !nearHolds(l, g, snapped, fw.Regret) {
+	snapped, den := exact.Rationalize(g, result.ProbBits)
+	if !result.NearHolds(l, g, snapped, fw.Regret) {
 		t.Error("greedy's tables, exact fractions already, do not hold their own near configurations")
 	}
-	moved, _ := exact.Rationalize(g, ProbBits)
+	moved, _ := exact.Rationalize(g, result.ProbBits)
 	for _, tb := range moved.Tables {
 		for c := range tb.Cells {
 			p := tb.Cells[c].P
@@ -46,7 +38,7 @@ func TestNearChecks(t *testing.T) {
 			}
 		}
 	}
-	if nearHolds(l, g, moved, fw.Regret) {
+	if result.NearHolds(l, g, moved, fw.Regret) {
 		t.Error("tables moved by a quarter in some cells still hold the near configurations")
 	}
 
@@ -65,11 +57,11 @@ func TestNearChecks(t *testing.T) {
 		{"below it", new(big.Rat).Quo(full.Regret, big.NewRat(2, 1)), true},
 		{"above it", new(big.Rat).Add(full.Regret, big.NewRat(1, 1<<40)), false},
 	} {
-		if got := noBetter(l, g, near, tc.w); got != tc.want {
+		if got := result.NoBetter(l, g, near, tc.w); got != tc.want {
 			t.Errorf("%s: noBetter %v, want %v", tc.name, got, tc.want)
 		}
 	}
-	if noBetter(l, g, nil, new(big.Rat)) {
+	if result.NoBetter(l, g, nil, new(big.Rat)) {
 		t.Error("noBetter without configurations said greedy is no better")
 	}
 }

@@ -383,10 +383,6 @@ func noBetter(l *tables.Layout, o *tables.Optimal, near [][]int, w *big.Rat) boo
 	return exact.WorstCaseAmong(l, et, near).Regret.Cmp(w) >= 0
 }
 
-// floatRel bounds the relative error of a float regret from the fast
-// evaluator, with the margin that exact.WorstCaseScreened leaves.
-const floatRel = 1e-9
-
 // nearHolds reports whether the configurations that constraint generation
 // found near the float worst case worst of o (minimax.CGResult.Near) hold
 // every configuration that can reach the exact worst case of the snapped
@@ -395,9 +391,9 @@ const floatRel = 1e-9
 // the largest regret of a channel, at most (n-1)*D steps (the values of a
 // configuration differ by at most D steps from one to the next). A
 // configuration left out had a float regret below (1-NearRel)*worst, so
-// an exact regret under t of at most (1-NearRel)*worst*(1+floatRel) +
-// e*s; the configuration of the float worst case has one of at least
-// worst*(1-floatRel) - e*s under t. When the first is below the second,
+// an exact regret under t of at most (1-NearRel)*worst*(1+r) + e*s, r the
+// float evaluator's relative error (exact.ScreenTol); the configuration of
+// the float worst case has one of at least worst*(1-r) - e*s under t. When the first is below the second,
 // no configuration left out reaches the exact worst case of t.
 func nearHolds(l *tables.Layout, o, t *tables.Optimal, worst float64) bool {
 	if len(o.Tables) != len(t.Tables) || !(worst > 0) {
@@ -422,8 +418,8 @@ func nearHolds(l *tables.Layout, o, t *tables.Optimal, worst float64) bool {
 		}
 	}
 	move := e * float64((l.N()-1)*l.D)
-	left := (1-minimax.NearRel)*worst*(1+floatRel) + move
-	return left < worst*(1-floatRel)-move
+	left := (1-minimax.NearRel)*worst*(1+exact.ScreenTol) + move
+	return left < worst*(1-exact.ScreenTol)-move
 }
 
 // GreedyWidth returns the widening, in steps, that evaluating the greedy
